@@ -1,0 +1,88 @@
+"""Command line: argument parsing only; the work is done by the Python API."""
+
+import argparse
+import sys
+from pathlib import Path
+
+from . import __version__
+
+EXIT_BAD_INPUT = 2
+EXIT_INTERRUPTED = 130
+
+
+def _parser():
+    parser = argparse.ArgumentParser(
+        prog="nullray",
+        description="Ray-trace thin accretion disks around Kerr black holes.")
+    parser.add_argument("--version", action="version", version=f"nullray {__version__}")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND")
+    commands.required = True
+
+    still = commands.add_parser("still", help="render one image and its data maps")
+    still.add_argument("scene", nargs="?", help="YAML scene file (default: built-in default scene)")
+    still.add_argument("--set", dest="overrides", action="append", default=[],
+                       metavar="KEY=VALUE", help="override a scene value, e.g. black_hole.spin=0.5")
+    still.add_argument("--output-dir", default="outputs", metavar="DIR",
+                       help="folder the files are written to (default: outputs)")
+    still.add_argument("--overwrite", action="store_true",
+                       help="replace existing output files of the same name")
+    still.add_argument("--quiet", action="store_true", help="print nothing on success")
+
+    commands.add_parser("keys", help="print the scene-key reference (Markdown)")
+    return parser
+
+
+def _load(args):
+    from .scene import default_scene, load_scene
+
+    if args.scene:
+        return load_scene(args.scene, args.overrides)
+    return default_scene(args.overrides, name="default")
+
+
+def _still(args):
+    from .output import check_free, still_paths, write_still
+    from .still import render_still
+
+    scene = _load(args)
+    folder = Path(args.output_dir)
+    # Refuse before any work if a target exists (nothing the user made is
+    # overwritten silently).
+    check_free(still_paths(scene.document, folder).values(), args.overwrite)
+    result = render_still(scene)
+    paths = write_still(result, folder, overwrite=args.overwrite)
+    if not args.quiet:
+        meta = result.metadata
+        counts = ", ".join(f"{k} {v}" for k, v in meta["fate_counts"].items())
+        print(f"rendered {scene['image.width']}x{scene['image.height']} in "
+              f"{meta['total_seconds']:.2f} s (spin {scene.spin:g}, inclination "
+              f"{scene['observer.inclination']:g} deg, ISCO {meta['isco']:.4f} M); pixels: {counts}")
+        for path in paths.values():
+            print(f"wrote {path}")
+    return 0
+
+
+def main(argv=None):
+    """Entry point of the ``nullray`` command; returns the exit status."""
+    from .output import OutputExists
+    from .scene import SceneError
+
+    args = _parser().parse_args(argv)
+    try:
+        if args.command == "keys":
+            from .scene import keys_reference
+
+            print(keys_reference())
+            return 0
+        return _still(args)
+    except (SceneError, OutputExists) as exc:
+        print(f"nullray: error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        print(f"nullray: interrupted; finished outputs (if any) are in {args.output_dir}/",
+              file=sys.stderr)
+        return EXIT_INTERRUPTED
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,112 @@
+"""Writing results: atomic files, PNG images, NPZ data maps.
+
+Every file is first written to a temporary name in the destination folder and
+then renamed into place (``os.replace``, atomic on POSIX), so an interrupted
+run never leaves a truncated file under the final name.  Existing files are
+never overwritten unless the caller passes ``overwrite=True``.
+"""
+
+import json
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["OutputExists", "atomic_write", "write_png", "write_npz", "check_free"]
+
+
+class OutputExists(FileExistsError):
+    """An output file is already there and overwriting was not asked for."""
+
+
+def check_free(paths, overwrite=False):
+    """Raise :class:`OutputExists` if any path exists and ``overwrite`` is false."""
+    if overwrite:
+        return
+    for path in paths:
+        if Path(path).exists():
+            raise OutputExists(f"{path} exists; pass --overwrite to replace it, or choose "
+                               f"another name with --set name=...")
+
+
+def atomic_write(path, write, overwrite=False):
+    """Call ``write(file_object)`` on a temporary file, then rename it to ``path``."""
+    path = Path(path)
+    check_free([path], overwrite)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            write(handle)
+            handle.flush()
+            os.fsync(handle.fileno())
+        if not overwrite and path.exists():
+            raise OutputExists(f"{path} appeared while writing; not replaced")
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    return path
+
+
+def write_png(path, pixels, overwrite=False, metadata=None):
+    """Write an 8-bit grey (H, W) or RGB (H, W, 3) array as PNG, atomically."""
+    from PIL import Image, PngImagePlugin
+
+    info = PngImagePlugin.PngInfo()
+    for key, value in (metadata or {}).items():
+        info.add_text(str(key), str(value))
+    image = Image.fromarray(np.ascontiguousarray(pixels))
+    return atomic_write(path, lambda f: image.save(f, format="PNG", pnginfo=info), overwrite)
+
+
+def write_npz(path, arrays, metadata, overwrite=False):
+    """Write arrays plus a JSON ``metadata`` string entry to a compressed NPZ, atomically."""
+    payload = dict(arrays)
+    payload["metadata"] = np.array(json.dumps(metadata, sort_keys=True, default=_jsonable))
+    return atomic_write(path, lambda f: np.savez_compressed(f, **payload), overwrite)
+
+
+def _jsonable(value):
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    raise TypeError(f"not JSON serialisable: {type(value).__name__}")
+
+
+def still_paths(scene_document, folder):
+    """Final paths of a still's files: {kind: Path} for the kinds the scene asks for."""
+    scene = scene_document
+    folder = Path(folder)
+    paths = {}
+    if scene["output"]["png"]:
+        paths["png"] = folder / f"{scene['name']}.png"
+    if scene["output"]["npz"]:
+        paths["npz"] = folder / f"{scene['name']}.npz"
+    return paths
+
+
+def write_still(result, folder="outputs", overwrite=False):
+    """Write a :class:`~render.still.StillResult` as PNG and NPZ into ``folder``.
+
+    Nothing is written if any target exists and ``overwrite`` is false.
+
+    Returns
+    -------
+    dict
+        {kind: Path} of the files written.
+    """
+    paths = still_paths(result.metadata["scene"], folder)
+    check_free(paths.values(), overwrite)
+    if "png" in paths:
+        write_png(paths["png"], result.pixels, overwrite,
+                  metadata={"Software": f"nullray {result.metadata['version']}",
+                            "nullray-scene": json.dumps(result.metadata["scene"], sort_keys=True)})
+    if "npz" in paths:
+        write_npz(paths["npz"], result.maps(), result.metadata, overwrite)
+    return paths

@@ -1,0 +1,424 @@
+"""Reading and validating scene files (YAML) into plain typed objects.
+
+Every key, its unit, default and allowed values live in ``KEYS`` below; the
+README's scene reference is written from the same table
+(``python -m render keys`` prints it).  Validation errors are raised as
+:class:`SceneError` with one line naming the key, the value and what is allowed.
+"""
+
+import difflib
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import yaml
+
+from .camera import FRAMES, check_observer_position
+from .spacetime import horizon_radii, isco_radius
+
+__all__ = [
+    "SceneError",
+    "Scene",
+    "KEYS",
+    "load_scene",
+    "scene_from_dict",
+    "apply_overrides",
+    "default_scene",
+    "keys_reference",
+]
+
+MAX_SCENE_BYTES = 256 * 1024
+MAX_NESTING = 8
+MAX_PIXELS_SIDE = 65536
+
+
+class SceneError(ValueError):
+    """A scene value that cannot be used; the message is one line for the user."""
+
+
+@dataclass(frozen=True)
+class KeySpec:
+    path: str
+    kind: str  # "float", "int", "bool", "str", "choice", "radius_or_isco"
+    default: object
+    unit: str
+    allowed: str
+    doc: str
+    low: float = -math.inf
+    high: float = math.inf
+    low_open: bool = False
+    high_open: bool = False
+    choices: tuple = ()
+
+
+def _k(path, kind, default, unit, allowed, doc, **limits):
+    return KeySpec(path, kind, default, unit, allowed, doc, **limits)
+
+
+KEYS = {spec.path: spec for spec in [
+    _k("name", "str", "scene", "-", "letters, digits, '-', '_', '.' (no path separators)",
+       "Base name of the output files (default: the scene file's name)."),
+    _k("black_hole.spin", "float", 0.9, "a/M", "-1 < spin < 1",
+       "Dimensionless spin; negative means the disk counter-rotates with respect to the hole.",
+       low=-1.0, high=1.0, low_open=True, high_open=True),
+    _k("observer.kind", "choice", "camera", "-", "camera, distant",
+       "camera: a physical observer at finite distance; distant: the exact observer at infinity.",
+       choices=("camera", "distant")),
+    _k("observer.distance", "float", 1000.0, "M", "outside the horizon (zamo) or the ergoregion "
+       "(static), at most 1e9", "Boyer–Lindquist radius of the camera (camera only).",
+       low=0.0, high=1e9, low_open=True),
+    _k("observer.inclination", "float", 60.0, "deg", "0 <= inclination <= 180",
+       "Polar angle of the observer from the spin axis.", low=0.0, high=180.0),
+    _k("observer.azimuth", "float", 0.0, "deg", "-360 <= azimuth <= 360",
+       "Boyer–Lindquist azimuth of the observer.", low=-360.0, high=360.0),
+    _k("observer.frame", "choice", "zamo", "-", ", ".join(FRAMES),
+       "Local frame of the camera: zamo (zero angular momentum) or static.", choices=FRAMES),
+    _k("observer.field_of_view", "float", 40.0, "M", "0 < field_of_view <= 10000",
+       "Full width of the image in M at the hole's distance.", low=0.0, high=1e4, low_open=True),
+    _k("observer.roll", "float", 0.0, "deg", "-360 <= roll <= 360",
+       "Counter-clockwise rotation of the image about the line of sight.",
+       low=-360.0, high=360.0),
+    _k("image.width", "int", 512, "pixels", f"1 <= width <= {MAX_PIXELS_SIDE}",
+       "Pixels across.", low=1, high=MAX_PIXELS_SIDE),
+    _k("image.height", "int", 512, "pixels", f"1 <= height <= {MAX_PIXELS_SIDE}",
+       "Pixels down.", low=1, high=MAX_PIXELS_SIDE),
+    _k("disk.inner_radius", "radius_or_isco", "isco", "M", "'isco' or a radius >= the ISCO",
+       "Inner edge of the disk; emission inside the ISCO (plunging gas) is not modelled yet."),
+    _k("disk.outer_radius", "float", 20.0, "M", "inner_radius < outer_radius <= 1e6",
+       "Outer edge of the disk.", low=0.0, high=1e6, low_open=True),
+    _k("disk.surface", "choice", "opaque", "-", "opaque, transparent",
+       "opaque: a ray ends at its first disk crossing; transparent: orders 0..orders-1 add up.",
+       choices=("opaque", "transparent")),
+    _k("disk.orders", "int", 2, "-", "1 <= orders <= 16",
+       "Equatorial crossings recorded per ray (order n counts all earlier crossings).",
+       low=1, high=16),
+    _k("emission.law", "choice", "power_law", "-", "power_law",
+       "Rest-frame emission law.", choices=("power_law",)),
+    _k("emission.index", "float", 3.0, "-", "-10 <= index <= 20",
+       "Power-law index q of I_em = r^-q.", low=-10.0, high=20.0),
+    _k("tracing.tolerance", "float", 1e-9, "-", "1e-14 <= tolerance <= 1e-3",
+       "Relative tolerance of the adaptive Dormand–Prince 5(4) step control.",
+       low=1e-14, high=1e-3),
+    _k("tracing.max_steps", "int", 100000, "-", "100 <= max_steps <= 10000000",
+       "Step cap per ray; a ray that reaches it gets the fate 'unresolved'.",
+       low=100, high=10_000_000),
+    _k("tracing.max_crossings", "int", 64, "-", "1 <= max_crossings <= 100000",
+       "Cap on equatorial crossings followed per ray (photon-sphere grazers); then 'unresolved'.",
+       low=1, high=100_000),
+    _k("tracing.memory_budget", "float", 2.0, "GB", "0.01 <= memory_budget <= 1024",
+       "Largest memory the output arrays of one still may take.", low=0.01, high=1024.0),
+    _k("output.png", "bool", True, "-", "true, false", "Write the tone-mapped 8-bit PNG."),
+    _k("output.npz", "bool", True, "-", "true, false", "Write the per-pixel data maps (NPZ)."),
+    _k("output.exposure", "float", 1.0, "-", "0 < exposure <= 1e12",
+       "Brightness multiplier of the fixed exposure rule (see README).",
+       low=0.0, high=1e12, low_open=True),
+]}
+
+SECTIONS = sorted({p.split(".")[0] for p in KEYS if "." in p})
+
+
+@dataclass(frozen=True)
+class Scene:
+    """A validated scene: ``values`` maps every dotted key to its value.
+
+    Attributes are reached as ``scene["black_hole.spin"]`` or via the helpers
+    below; ``document`` is the full nested mapping (defaults filled in), which
+    is what outputs echo as metadata.  ``disk.inner_radius`` is resolved to a
+    number (the ISCO when 'isco' was given).
+    """
+
+    values: dict
+    source: str = "<defaults>"
+    document: dict = field(default_factory=dict)
+
+    def __getitem__(self, key):
+        return self.values[key]
+
+    @property
+    def spin(self):
+        return self.values["black_hole.spin"]
+
+    @property
+    def inner_radius(self):
+        value = self.values["disk.inner_radius"]
+        return isco_radius(self.spin) if value == "isco" else float(value)
+
+
+def _describe(value):
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def _fail(key, value, allowed):
+    raise SceneError(f"{key} = {_describe(value)} is not allowed; expected {allowed}")
+
+
+def _coerce(spec, value):
+    """Check one value against its spec; return it in its canonical type."""
+    key = spec.path
+    if spec.kind == "bool":
+        if not isinstance(value, bool):
+            _fail(key, value, "true or false")
+        return value
+    if spec.kind == "str":
+        if not isinstance(value, str) or not value or len(value) > 100:
+            _fail(key, value, spec.allowed)
+        if any(c in value for c in "/\\\0") or value in (".", "..") or not all(
+                c.isalnum() or c in "-_." for c in value):
+            _fail(key, value, spec.allowed)
+        return value
+    if spec.kind == "choice":
+        if value not in spec.choices:
+            _fail(key, value, f"one of: {', '.join(spec.choices)}")
+        return value
+    if spec.kind == "radius_or_isco":
+        if value == "isco":
+            return value
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            _fail(key, value, spec.allowed)
+        if not math.isfinite(value):
+            _fail(key, value, "a finite number")
+        return float(value)
+    # Numbers.  YAML booleans are ints in Python: refuse them explicitly.
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        _fail(key, value, f"a number ({spec.allowed})")
+    if spec.kind == "int":
+        if isinstance(value, float):
+            if not value.is_integer():
+                _fail(key, value, f"a whole number ({spec.allowed})")
+            value = int(value)
+    else:
+        value = float(value)
+        if not math.isfinite(value):
+            _fail(key, value, f"a finite number ({spec.allowed})")
+    too_low = value < spec.low or (spec.low_open and value == spec.low)
+    too_high = value > spec.high or (spec.high_open and value == spec.high)
+    if too_low or too_high:
+        _fail(key, value, spec.allowed)
+    return value
+
+
+def _suggest(key):
+    close = difflib.get_close_matches(key, list(KEYS) + SECTIONS, n=1, cutoff=0.5)
+    if not close:
+        leaf = key.rsplit(".", 1)[-1]
+        leaves = {p.rsplit(".", 1)[-1]: p for p in KEYS}
+        near = difflib.get_close_matches(leaf, list(leaves), n=1, cutoff=0.6)
+        close = [leaves[near[0]]] if near else []
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+def _flatten(document, prefix="", depth=0):
+    if depth > MAX_NESTING:
+        raise SceneError(f"{prefix.rstrip('.') or 'scene'} is nested more than {MAX_NESTING} deep")
+    flat = {}
+    for key, value in document.items():
+        if not isinstance(key, str):
+            raise SceneError(f"{prefix}{_describe(key)} is not a valid key; keys are text")
+        path = prefix + key
+        if isinstance(value, dict) and path not in KEYS:
+            if path not in SECTIONS:
+                raise SceneError(f"unknown section '{path}'{_suggest(path)}")
+            flat.update(_flatten(value, path + ".", depth + 1))
+        else:
+            flat[path] = value
+    return flat
+
+
+def _nest(values):
+    document = {}
+    for path, value in values.items():
+        node = document
+        parts = path.split(".")
+        for part in parts[:-1]:
+            node = node.setdefault(part, {})
+        node[parts[-1]] = value
+    return document
+
+
+def _check_consistency(values):
+    """Checks that involve more than one key."""
+    spin = values["black_hole.spin"]
+    r_plus, _ = horizon_radii(spin)
+    r_isco = isco_radius(spin)
+    r_in = values["disk.inner_radius"]
+    if r_in != "isco":
+        if r_in <= r_plus:
+            _fail("disk.inner_radius", r_in, f"a radius outside the horizon r_+ = {r_plus:.6g} M")
+        if r_in < r_isco * (1.0 - 1e-12):
+            _fail("disk.inner_radius", r_in,
+                  f"'isco' or a radius >= the ISCO ({r_isco:.6g} M for spin {spin:g}); "
+                  "emission from plunging gas inside the ISCO is not modelled")
+    inner = r_isco if r_in == "isco" else r_in
+    if not values["disk.outer_radius"] > inner:
+        _fail("disk.outer_radius", values["disk.outer_radius"],
+              f"a radius larger than the inner edge ({inner:.6g} M)")
+    if values["observer.kind"] == "camera":
+        try:
+            check_observer_position(spin, values["observer.distance"],
+                                    values["observer.inclination"], values["observer.frame"])
+        except ValueError as exc:
+            raise SceneError(f"observer.distance = {values['observer.distance']!r} is not "
+                             f"allowed; {exc}") from None
+    pixels = values["image.width"] * values["image.height"]
+    orders = values["disk.orders"]
+    needed = estimated_bytes(pixels, orders) / 1e9
+    if needed > values["tracing.memory_budget"]:
+        raise SceneError(
+            f"image.width x image.height = {values['image.width']} x {values['image.height']} "
+            f"needs about {needed:.3g} GB with {orders} orders; allowed: at most "
+            f"tracing.memory_budget = {values['tracing.memory_budget']:g} GB")
+
+
+def estimated_bytes(pixels, orders):
+    """Peak bytes held per still: ray states and per-order maps (8-byte floats)."""
+    per_pixel = 8 * (6 + 4) + orders * (8 * 6 + 2) + 32
+    return pixels * per_pixel
+
+
+def scene_from_dict(document, source="<dict>", default_name="scene"):
+    """Validate a nested mapping (as read from YAML) and return a :class:`Scene`."""
+    if document is None:
+        raise SceneError(f"{source} is empty; a scene is a mapping of sections "
+                         f"({', '.join(SECTIONS)})")
+    if not isinstance(document, dict):
+        raise SceneError(f"{source} must be a mapping of sections ({', '.join(SECTIONS)}), "
+                         f"got {type(document).__name__}")
+    flat = _flatten(document)
+    values = {}
+    for path, value in flat.items():
+        if path not in KEYS:
+            raise SceneError(f"unknown key '{path}'{_suggest(path)}")
+        values[path] = _coerce(KEYS[path], value)
+    for path, spec in KEYS.items():
+        values.setdefault(path, spec.default if path != "name" else default_name)
+    _check_consistency(values)
+    return Scene(values=values, source=source, document=_nest(values))
+
+
+class _StrictLoader(yaml.SafeLoader):
+    """Safe loader that also refuses anchors/aliases (no alias bombs)."""
+
+    def compose_node(self, parent, index):
+        if self.check_event(yaml.AliasEvent):
+            event = self.peek_event()
+            raise SceneError(f"YAML aliases are not allowed in scene files "
+                             f"(line {event.start_mark.line + 1})")
+        event = self.peek_event()
+        anchor = getattr(event, "anchor", None)
+        if anchor is not None:
+            raise SceneError(f"YAML anchors are not allowed in scene files "
+                             f"(line {event.start_mark.line + 1})")
+        return super().compose_node(parent, index)
+
+
+def parse_yaml_text(text, source):
+    """Parse YAML text with the strict safe loader; errors become one-line SceneErrors."""
+    try:
+        return yaml.load(text, Loader=_StrictLoader)
+    except SceneError:
+        raise
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
+        problem = getattr(exc, "problem", None) or str(exc).splitlines()[0]
+        raise SceneError(f"{source} is not valid scene YAML{where}: {problem}") from None
+    except RecursionError:
+        raise SceneError(f"{source} is nested too deeply") from None
+
+
+def read_scene_document(path):
+    """Read a scene file's mapping, refusing oversized, non-UTF-8 or unsafe input."""
+    path = Path(path)
+    try:
+        size = os.path.getsize(path)
+        if size > MAX_SCENE_BYTES:
+            raise SceneError(f"{path} is {size} bytes; scene files are limited to "
+                             f"{MAX_SCENE_BYTES} bytes")
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise SceneError(f"cannot read scene file {path}: {exc.strerror or exc}") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise SceneError(f"{path} is not UTF-8 text (byte {exc.start})") from None
+    return parse_yaml_text(text, str(path))
+
+
+def apply_overrides(document, overrides):
+    """Apply ``dotted.key=value`` strings (values parsed as YAML) to a nested mapping."""
+    document = {} if document is None else document
+    if not isinstance(document, dict):
+        return document
+    for item in overrides or ():
+        if "=" not in item:
+            raise SceneError(f"--set {item!r} is not allowed; expected dotted.key=value")
+        key, text = item.split("=", 1)
+        key = key.strip()
+        if key not in KEYS:
+            raise SceneError(f"--set: unknown key '{key}'{_suggest(key)}")
+        value = parse_yaml_text(text, f"--set {key}") if text.strip() else ""
+        node = document
+        parts = key.split(".")
+        for part in parts[:-1]:
+            child = node.get(part)
+            if not isinstance(child, dict):
+                child = node[part] = {}
+            node = child
+        node[parts[-1]] = value
+    return document
+
+
+def load_scene(path, overrides=()):
+    """Load and validate a scene file.
+
+    Parameters
+    ----------
+    path : str or Path
+        YAML scene file.
+    overrides : sequence of str
+        ``dotted.key=value`` items applied before validation (as ``--set``).
+
+    Returns
+    -------
+    Scene
+
+    Raises
+    ------
+    SceneError
+        With one line naming the key, the value and what is allowed.
+    """
+    document = read_scene_document(path)
+    if document is not None and not isinstance(document, dict):
+        raise SceneError(f"{path} must be a mapping of sections ({', '.join(SECTIONS)}), "
+                         f"got {type(document).__name__}")
+    if document is None and not overrides:
+        raise SceneError(f"{path} is empty; a scene is a mapping of sections "
+                         f"({', '.join(SECTIONS)})")
+    document = apply_overrides(document, overrides)
+    return scene_from_dict(document, source=str(path), default_name=Path(path).stem)
+
+
+def default_scene(overrides=(), **values):
+    """A scene with every default, optionally changed by dotted keys.
+
+    Examples
+    --------
+    >>> default_scene(**{"black_hole.spin": 0.5}).spin
+    0.5
+    """
+    document = _nest(values)
+    document = apply_overrides(document, overrides)
+    return scene_from_dict(document, source="<defaults>", default_name="scene")
+
+
+def keys_reference():
+    """The scene-key reference as a Markdown table (used for the README)."""
+    lines = ["| key | unit | default | allowed | meaning |", "|---|---|---|---|---|"]
+    for spec in KEYS.values():
+        default = "scene file's name" if spec.path == "name" else spec.default
+        if isinstance(default, bool):
+            default = str(default).lower()
+        lines.append(f"| `{spec.path}` | {spec.unit} | `{default}` | {spec.allowed} | {spec.doc} |")
+    return "\n".join(lines)

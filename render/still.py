@@ -1,0 +1,152 @@
+"""Rendering one still: scene -> camera -> geodesics (+ disk) -> emission -> arrays."""
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import __version__
+from .camera import camera_rays, distant_observer_rays, image_plane_grid
+from .color import srgb_encode, to_uint8, tone_map
+from .disk import on_disk, redshift_factor
+from .emission import make_emission_law, observed_bolometric
+from .geodesics import FATE_DISK, FATE_NAMES
+from .points import trace_bundle
+from .spacetime import horizon_radii, isco_radius
+
+__all__ = ["StillResult", "render_still", "observer_rays"]
+
+
+@dataclass
+class StillResult:
+    """Arrays of one rendered still (row 0 is the top of the image).
+
+    Attributes
+    ----------
+    intensity : ndarray (H, W)
+        Observed bolometric intensity (arbitrary units of the emission law), 0 off the disk.
+    pixels : ndarray (H, W) of uint8
+        The tone-mapped, sRGB-encoded image (exposure rule in :mod:`render.color`).
+    fate : ndarray (H, W) of int8
+        0 escaped, 1 captured, 2 disk (opaque surface), 3 unresolved.
+    alpha, beta : ndarray (H, W)
+        Image-plane coordinates of each pixel centre in M.
+    r, phi, g, delay : ndarray (orders, H, W)
+        Per order n: crossing radius (M), azimuth (rad), redshift factor and
+        regularised time delay (M); NaN where the ray has no n-th crossing
+        (g also NaN inside the ISCO).
+    on_disk : ndarray (orders, H, W) of bool
+        Whether the n-th crossing lies between the disk's edges (and, for an
+        opaque disk, is the one that ended the ray).
+    steps : ndarray (H, W)
+        Integrator steps taken per pixel.
+    metadata : dict
+        The scene echoed in full, conventions, counts and timings.
+    """
+
+    intensity: np.ndarray
+    pixels: np.ndarray
+    fate: np.ndarray
+    alpha: np.ndarray
+    beta: np.ndarray
+    r: np.ndarray
+    phi: np.ndarray
+    g: np.ndarray
+    delay: np.ndarray
+    on_disk: np.ndarray
+    steps: np.ndarray
+    metadata: dict = field(default_factory=dict)
+
+    def maps(self):
+        """The per-pixel arrays by name (what the NPZ holds)."""
+        return {name: getattr(self, name) for name in (
+            "intensity", "pixels", "fate", "alpha", "beta", "r", "phi", "g", "delay",
+            "on_disk", "steps")}
+
+
+def observer_rays(scene):
+    """Image-plane grid and the initial ray bundle for a scene's observer."""
+    alpha, beta = image_plane_grid(scene["image.width"], scene["image.height"],
+                                   scene["observer.field_of_view"], scene["observer.roll"])
+    if scene["observer.kind"] == "distant":
+        bundle = distant_observer_rays(alpha, beta, scene.spin, scene["observer.inclination"],
+                                       scene["observer.azimuth"])
+    else:
+        bundle = camera_rays(alpha, beta, scene.spin, scene["observer.distance"],
+                             scene["observer.inclination"], scene["observer.azimuth"],
+                             scene["observer.frame"])
+    return alpha, beta, bundle
+
+
+def render_still(scene):
+    """Render a validated :class:`~render.scene.Scene` and return a :class:`StillResult`.
+
+    Examples
+    --------
+    >>> from render import default_scene
+    >>> result = render_still(default_scene(**{"image.width": 8, "image.height": 8}))
+    >>> result.intensity.shape
+    (8, 8)
+    """
+    started = time.perf_counter()
+    width, height = scene["image.width"], scene["image.height"]
+    orders = scene["disk.orders"]
+    spin = scene.spin
+    r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
+    opaque = scene["disk.surface"] == "opaque"
+    alpha, beta, bundle = observer_rays(scene)
+    raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
+                       max_steps=scene["tracing.max_steps"],
+                       max_crossings=scene["tracing.max_crossings"],
+                       stop_on_disk=opaque, r_in=r_in, r_out=r_out)
+    traced = time.perf_counter()
+    g = redshift_factor(raw["r"], bundle.lam[:, None], spin, bundle.energy_ratio[:, None])
+    hits = on_disk(raw["r"], r_in, r_out)
+    if opaque:
+        # Only the crossing that ended the ray shines; earlier ones missed the disk.
+        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
+        ended_on_disk = raw["fate"] == FATE_DISK
+        keep = np.zeros_like(hits)
+        rows = np.nonzero(ended_on_disk & (raw["n_crossings"] <= orders))[0]
+        keep[rows, last[rows]] = True
+        hits &= keep
+    law = make_emission_law(scene["emission.law"], index=scene["emission.index"])
+    with np.errstate(invalid="ignore"):
+        per_order = np.where(hits, observed_bolometric(g, law.intensity(raw["r"])), 0.0)
+    per_order = np.nan_to_num(per_order, nan=0.0)
+    intensity = per_order.sum(axis=1)
+    white = law.intensity(r_in)
+    pixels = to_uint8(srgb_encode(tone_map(intensity, white, scene["output.exposure"])))
+
+    def image(a):
+        return a.reshape(height, width)
+
+    def stack(a):
+        return np.ascontiguousarray(np.moveaxis(a, 1, 0).reshape(orders, height, width))
+
+    fate = image(raw["fate"])
+    counts = {name: int(np.count_nonzero(fate == code)) for code, name in FATE_NAMES.items()}
+    r_plus, _ = horizon_radii(spin)
+    metadata = {
+        "program": "nullray", "version": __version__,
+        "scene": scene.document, "scene_source": scene.source,
+        "units": "geometric, G = c = M = 1: lengths and times in M, angles in rad",
+        "conventions": {
+            "alpha": "image-plane x in M, to the right (Bardeen 1973)",
+            "beta": "image-plane y in M, up along the projected spin axis",
+            "rows": "row 0 is the top of the image",
+            "order": "n counts all earlier crossings of the equatorial plane",
+            "fate_codes": {str(k): v for k, v in FATE_NAMES.items()},
+            "g": "nu_obs / nu_em; NaN inside the ISCO",
+            "delay": "(t_obs - t_em) - (r*_obs - r*_em), dr*/dr = (r^2+a^2)/Delta",
+            "exposure": "display = x/(1+x), x = exposure * I / I_em(r_in); then sRGB",
+        },
+        "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": r_in,
+        "outer_radius": r_out, "fate_counts": counts,
+        "steps_mean": float(raw["steps"].mean()),
+        "trace_seconds": traced - started, "total_seconds": time.perf_counter() - started,
+    }
+    return StillResult(
+        intensity=image(intensity), pixels=image(pixels), fate=fate, alpha=alpha, beta=beta,
+        r=stack(raw["r"]), phi=stack(raw["phi"]), g=stack(g), delay=stack(raw["delay"]),
+        on_disk=stack(hits), steps=image(raw["steps"]), metadata=metadata)
