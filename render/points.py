@@ -13,24 +13,39 @@ __all__ = ["trace_points", "trace_bundle", "CAPTURE_MARGIN", "DEFAULT_TOLERANCE"
 # is regular there in Mino time, but phi and t diverge logarithmically.
 CAPTURE_MARGIN = 1e-6
 DEFAULT_TOLERANCE = 1e-9
+# Rays per kernel call: large enough to keep both cores busy, small enough to
+# stay responsive to Ctrl-C and to bound scratch memory (~10 MB).
+CHUNK_RAYS = 32768
 
 
 def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_steps=100000,
-                 max_crossings=64, stop_on_disk=False, r_in=0.0, r_out=0.0):
-    """Run the kernel on a :class:`~render.camera.RayBundle`; return the raw arrays as a dict."""
+                 max_crossings=64, stop_on_disk=False, r_in=0.0, r_out=0.0,
+                 chunk_rays=CHUNK_RAYS, progress=None):
+    """Run the kernel on a :class:`~render.camera.RayBundle`; return the raw arrays as a dict.
+
+    Rays are traced in chunks of ``chunk_rays`` (each chunk one parallel kernel
+    call), which bounds the kernel's scratch memory, lets Ctrl-C interrupt a
+    long render between chunks, and drives ``progress(done, total)`` if given.
+    """
     r_plus, _ = horizon_radii(spin)
     u_capture = 1.0 / (r_plus * (1.0 + CAPTURE_MARGIN))
-    (cross_r, cross_phi, cross_delay, cross_inward, fate, n_crossings, steps,
-     theta_end, phi_end) = trace_rays(
-        np.ascontiguousarray(bundle.states), np.ascontiguousarray(bundle.lam),
-        np.ascontiguousarray(bundle.eta), float(spin), float(bundle.u_escape), u_capture,
-        float(tolerance), int(max_steps), int(max_crossings), int(n_record),
-        bool(stop_on_disk), float(r_in), float(r_out))
-    return {
-        "r": cross_r, "phi": cross_phi, "delay": cross_delay, "inward": cross_inward,
-        "fate": fate, "n_crossings": n_crossings, "steps": steps,
-        "theta_end": theta_end, "phi_end": phi_end,
-    }
+    total = bundle.lam.size
+    names = ("r", "phi", "delay", "inward", "fate", "n_crossings", "steps",
+             "theta_end", "phi_end")
+    parts = {name: [] for name in names}
+    for start in range(0, max(total, 1), chunk_rays):
+        stop = min(start + chunk_rays, total)
+        arrays = trace_rays(
+            np.ascontiguousarray(bundle.states[start:stop]),
+            np.ascontiguousarray(bundle.lam[start:stop]),
+            np.ascontiguousarray(bundle.eta[start:stop]), float(spin), float(bundle.u_escape),
+            u_capture, float(tolerance), int(max_steps), int(max_crossings), int(n_record),
+            bool(stop_on_disk), float(r_in), float(r_out))
+        for name, array in zip(names, arrays):
+            parts[name].append(array)
+        if progress is not None:
+            progress(stop, total)
+    return {name: np.concatenate(chunks) for name, chunks in parts.items()}
 
 
 def trace_points(alpha, beta, *, spin, inclination_deg, max_orders=3, tolerance=None,
