@@ -1,6 +1,7 @@
 """Command line: argument parsing only; the work is done by the Python API."""
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -8,6 +9,10 @@ from . import __version__
 
 EXIT_BAD_INPUT = 2
 EXIT_INTERRUPTED = 130
+
+
+class OutputFolderError(Exception):
+    """The --output-dir cannot be created or written; the message is one line."""
 
 
 def _parser():
@@ -49,6 +54,14 @@ def _still(args):
     # Refuse before any work if a target exists (nothing the user made is
     # overwritten silently).
     check_free(still_paths(scene.document, folder).values(), args.overwrite)
+    # Likewise make sure the folder can be written before the (long) render.
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputFolderError(f"--output-dir {str(folder)!r} cannot be used: "
+                                f"{exc.strerror or exc}") from None
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise OutputFolderError(f"--output-dir {str(folder)!r} is not writable")
     result = render_still(scene)
     paths = write_still(result, folder, overwrite=args.overwrite)
     if not args.quiet:
@@ -75,7 +88,7 @@ def main(argv=None):
             print(keys_reference())
             return 0
         return _still(args)
-    except (SceneError, OutputExists) as exc:
+    except (SceneError, OutputExists, OutputFolderError) as exc:
         print(f"nullray: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:

@@ -183,7 +183,7 @@ def _coerce(spec, value):
             return value
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             _fail(key, value, spec.allowed)
-        if not math.isfinite(value):
+        if not _is_finite(value):
             _fail(key, value, "a finite number")
         return float(value)
     # Numbers.  YAML booleans are ints in Python: refuse them explicitly.
@@ -195,9 +195,9 @@ def _coerce(spec, value):
                 _fail(key, value, f"a whole number ({spec.allowed})")
             value = int(value)
     else:
-        value = float(value)
-        if not math.isfinite(value):
+        if not _is_finite(value):
             _fail(key, value, f"a finite number ({spec.allowed})")
+        value = float(value)
     too_low = value < spec.low or (spec.low_open and value == spec.low)
     too_high = value > spec.high or (spec.high_open and value == spec.high)
     if too_low or too_high:
@@ -205,7 +205,18 @@ def _coerce(spec, value):
     return value
 
 
+def _is_finite(value):
+    # A YAML integer can be far beyond float range (math.isfinite would raise).
+    try:
+        return math.isfinite(value)
+    except OverflowError:
+        return False
+
+
 def _suggest(key):
+    if key in SECTIONS:
+        first = next(p for p in KEYS if p.startswith(key + "."))
+        return f" ('{key}' is a section; give its keys, e.g. '{first}')"
     close = difflib.get_close_matches(key, list(KEYS) + SECTIONS, n=1, cutoff=0.5)
     if not close:
         leaf = key.rsplit(".", 1)[-1]
@@ -318,6 +329,21 @@ class _StrictLoader(yaml.SafeLoader):
                              f"(line {event.start_mark.line + 1})")
         return super().compose_node(parent, index)
 
+    def construct_mapping(self, node, deep=False):
+        # PyYAML silently keeps the last of repeated keys; a scene must not.
+        seen = set()
+        for key_node, _ in node.value:
+            key = self.construct_object(key_node, deep=deep)
+            try:
+                repeated = key in seen
+            except TypeError:  # unhashable key: the base class reports it
+                continue
+            if repeated:
+                raise SceneError(f"key '{key}' appears twice in one section "
+                                 f"(line {key_node.start_mark.line + 1})")
+            seen.add(key)
+        return super().construct_mapping(node, deep)
+
 
 def parse_yaml_text(text, source):
     """Parse YAML text with the strict safe loader; errors become one-line SceneErrors."""
@@ -332,6 +358,8 @@ def parse_yaml_text(text, source):
         raise SceneError(f"{source} is not valid scene YAML{where}: {problem}") from None
     except RecursionError:
         raise SceneError(f"{source} is nested too deeply") from None
+    except ValueError as exc:  # e.g. an integer with more digits than Python converts
+        raise SceneError(f"{source} is not valid scene YAML: {str(exc).splitlines()[0]}") from None
 
 
 def read_scene_document(path):
