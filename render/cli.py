@@ -89,7 +89,9 @@ def main(argv=None):
             return 0
         return _still(args)
     except (SceneError, OutputExists, OutputFolderError) as exc:
-        print(f"nullray: error: {exc}", file=sys.stderr)
+        # One line, whatever the key or file name contained.
+        message = str(exc).replace("\r", "\\r").replace("\n", "\\n")
+        print(f"nullray: error: {message}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         print(f"nullray: interrupted; finished outputs (if any) are in {args.output_dir}/",

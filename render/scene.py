@@ -236,7 +236,7 @@ def _flatten(document, prefix="", depth=0):
         path = prefix + key
         if isinstance(value, dict) and path not in KEYS:
             if path not in SECTIONS:
-                raise SceneError(f"unknown section '{path}'{_suggest(path)}")
+                raise SceneError(f"unknown section {_describe(path)}{_suggest(path)}")
             flat.update(_flatten(value, path + ".", depth + 1))
         else:
             flat[path] = value
@@ -306,7 +306,7 @@ def scene_from_dict(document, source="<dict>", default_name="scene"):
     values = {}
     for path, value in flat.items():
         if path not in KEYS:
-            raise SceneError(f"unknown key '{path}'{_suggest(path)}")
+            raise SceneError(f"unknown key {_describe(path)} (given {_describe(value)}){_suggest(path)}")
         values[path] = _coerce(KEYS[path], value)
     for path, spec in KEYS.items():
         values.setdefault(path, spec.default if path != "name" else default_name)
@@ -391,7 +391,8 @@ def apply_overrides(document, overrides):
         key, text = item.split("=", 1)
         key = key.strip()
         if key not in KEYS:
-            raise SceneError(f"--set: unknown key '{key}'{_suggest(key)}")
+            raise SceneError(f"--set: unknown key {_describe(key)} (given {_describe(text.strip())})"
+                             f"{_suggest(key)}")
         value = parse_yaml_text(text, f"--set {key}") if text.strip() else ""
         node = document
         parts = key.split(".")
