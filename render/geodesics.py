@@ -141,7 +141,11 @@ def _dopri_step(y, k1, h, spin, lam, eta, k, y_out, rtol, atol):
     for i in range(N_CONTROLLED):
         e = h * (_E1 * k1[i] + _E3 * k[1, i] + _E4 * k[2, i] + _E5 * k[3, i]
                  + _E6 * k[4, i] + _E7 * k[5, i])
-        scale = atol + rtol * max(abs(y[i]), abs(y_out[i]))
+        # u = 1/r needs a tiny absolute floor (relative accuracy in r at large
+        # r); mu, the Mino velocities and phi are O(1) and cross zero, where a
+        # relative criterion alone would force needlessly small steps.
+        floor = atol if i == 0 else rtol
+        scale = floor + rtol * max(abs(y[i]), abs(y_out[i]))
         total += (e / scale) ** 2
     return math.sqrt(total / N_CONTROLLED)
 
@@ -285,7 +289,8 @@ def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
     u_capture : float
         1/r at which a ray counts as captured (just outside the horizon).
     tolerance : float
-        Relative tolerance of the step control (absolute tolerance 1e-3 of it).
+        Tolerance of the step control: relative for every component, plus an
+        absolute floor equal to it (1e-3 of it for u = 1/r).
     max_steps, max_crossings : int
         Caps: a ray that reaches either gets the fate "unresolved".
     n_record : int
