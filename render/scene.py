@@ -9,6 +9,7 @@ README's scene reference is written from the same table
 import difflib
 import math
 import os
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -116,7 +117,7 @@ KEYS = {spec.path: spec for spec in [
        "Largest memory the output arrays of one still may take.", low=0.01, high=1024.0),
     _k("output.png", "bool", True, "-", "true, false", "Write the tone-mapped 8-bit PNG."),
     _k("output.npz", "bool", True, "-", "true, false", "Write the per-pixel data maps (NPZ)."),
-    _k("output.exposure", "float", 1.0, "-", "0 < exposure <= 1e12",
+    _k("output.exposure", "float", 4.0, "-", "0 < exposure <= 1e12",
        "Brightness multiplier of the fixed exposure rule (see README).",
        low=0.0, high=1e12, low_open=True),
 ]}
@@ -344,6 +345,14 @@ class _StrictLoader(yaml.SafeLoader):
             seen.add(key)
         return super().construct_mapping(node, deep)
 
+
+# PyYAML follows YAML 1.1, where 1e-9 and 6.2e6 are strings (the exponent needs
+# a sign and the mantissa a dot); scene files also accept the YAML 1.2 forms
+# (YAML 1.2 spec, sec. 10.2.1.4, core-schema float).
+_StrictLoader.add_implicit_resolver(
+    "tag:yaml.org,2002:float",
+    re.compile(r"^[-+]?(?:[0-9][0-9_]*(?:\.[0-9_]*)?|\.[0-9_]+)[eE][-+]?[0-9]+$"),
+    list("-+0123456789."))
 
 def parse_yaml_text(text, source):
     """Parse YAML text with the strict safe loader; errors become one-line SceneErrors."""
