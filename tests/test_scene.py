@@ -1,0 +1,333 @@
+"""Scene files: validation of bad input, defaults, overrides and round trips.
+
+The bad-input table runs each scene through the command line in-process
+(``render.cli.main``) so that it also checks what a user sees: exit status 2,
+one line on stderr naming the key and the value, no traceback, and no file in
+the output folder.  A few cases go through a real ``python -m render``
+subprocess in ``tests/test_cli.py``.
+"""
+
+import math
+from pathlib import Path
+
+import pytest
+import yaml
+
+import render.points
+from render.cli import EXIT_BAD_INPUT, main
+from render.scene import (
+    KEYS,
+    MAX_SCENE_BYTES,
+    SceneError,
+    default_scene,
+    load_scene,
+    scene_from_dict,
+)
+
+REPO = Path(__file__).resolve().parents[1]
+
+
+@pytest.fixture
+def no_tracing(monkeypatch):
+    """Make any call of the numba kernel fail the test: errors must come first."""
+
+    def refuse(*args, **kwargs):
+        raise AssertionError("the ray-tracing kernel ran although the input was bad")
+
+    monkeypatch.setattr(render.points, "trace_rays", refuse)
+
+
+def run_cli(args, capsys):
+    """Run ``nullray`` in-process; return (exit status, stdout, stderr)."""
+    status = main(args)
+    captured = capsys.readouterr()
+    return status, captured.out, captured.err
+
+
+def assert_one_line_error(status, out, err, fragments):
+    assert status == EXIT_BAD_INPUT
+    assert out == ""
+    assert err.startswith("nullray: error: ")
+    assert err.endswith("\n") and err.count("\n") == 1, err
+    assert "Traceback" not in err
+    for fragment in fragments:
+        assert fragment in err, (fragment, err)
+
+
+# (id, scene file text, fragments the one-line message must contain).
+# Physical boundaries used below, all textbook values:
+#   spin 0: horizon r_+ = 2 M, ISCO 6 M (Bardeen, Press & Teukolsky 1972, eq. 2.21 at a = 0);
+#   spin 0.9: r_+ = 1 + sqrt(1 - 0.81) = 1.436 M (Boyer-Lindquist horizon, MTW 1973 eq. 33.2);
+#   ergoregion boundary in the equatorial plane r = 1 + sqrt(1 - a^2 cos^2 theta) = 2 M for
+#   every spin (MTW 1973, sec. 33.8).
+BAD_SCENES = [
+    ("unknown-key", "black_hole:\n  spn: 0.5\n",
+     ["black_hole.spn", "0.5", "did you mean 'black_hole.spin'"]),
+    ("unknown-section", "blackhole:\n  spin: 0.5\n",
+     ["blackhole", "did you mean 'black_hole'"]),
+    ("unknown-leaf", "observer:\n  inclinaton: 30\n",
+     ["observer.inclinaton", "30", "observer.inclination"]),
+    ("section-given-a-value", "black_hole: 0.5\n", ["black_hole", "0.5", "black_hole.spin"]),
+    ("string-for-number", "black_hole:\n  spin: fast\n", ["black_hole.spin", "'fast'"]),
+    ("list-for-number", "observer:\n  inclination: [30, 40]\n",
+     ["observer.inclination", "[30, 40]"]),
+    ("bool-for-number", "black_hole:\n  spin: true\n", ["black_hole.spin", "True"]),
+    ("bool-for-int", "image:\n  width: yes\n", ["image.width", "True"]),
+    ("fraction-for-int", "image:\n  width: 16.5\n", ["image.width", "16.5", "whole number"]),
+    ("number-for-bool", "output:\n  png: 1\n", ["output.png", "1", "true or false"]),
+    ("bad-choice", "observer:\n  frame: rotating\n", ["observer.frame", "'rotating'", "zamo"]),
+    ("nan", "black_hole:\n  spin: .nan\n", ["black_hole.spin", "nan", "finite"]),
+    ("inf", "disk:\n  outer_radius: .inf\n", ["disk.outer_radius", "inf", "finite"]),
+    ("minus-inf-radius", "disk:\n  inner_radius: -.inf\n", ["disk.inner_radius", "-inf"]),
+    ("integer-beyond-float-range", "black_hole:\n  spin: 1" + "0" * 400 + "\n",
+     ["black_hole.spin", "finite"]),
+    ("spin-one", "black_hole:\n  spin: 1\n", ["black_hole.spin", "1", "-1 < spin < 1"]),
+    ("spin-minus-one", "black_hole:\n  spin: -1.0\n", ["black_hole.spin", "-1.0"]),
+    ("spin-above-one", "black_hole:\n  spin: 1.5\n", ["black_hole.spin", "1.5"]),
+    ("inclination-negative", "observer:\n  inclination: -0.5\n",
+     ["observer.inclination", "-0.5", "0 <= inclination <= 180"]),
+    ("inclination-above-180", "observer:\n  inclination: 180.5\n",
+     ["observer.inclination", "180.5"]),
+    ("outer-equals-inner", "black_hole:\n  spin: 0.0\ndisk:\n  inner_radius: 8\n"
+     "  outer_radius: 8\n", ["disk.outer_radius", "8"]),
+    ("outer-below-isco", "black_hole:\n  spin: 0.0\ndisk:\n  outer_radius: 5\n",
+     ["disk.outer_radius", "5"]),
+    ("inner-inside-horizon", "black_hole:\n  spin: 0.9\ndisk:\n  inner_radius: 1.2\n",
+     ["disk.inner_radius", "1.2", "horizon"]),
+    ("inner-below-isco", "black_hole:\n  spin: 0.0\ndisk:\n  inner_radius: 5.5\n",
+     ["disk.inner_radius", "5.5", "ISCO"]),
+    ("inner-negative", "disk:\n  inner_radius: -3\n", ["disk.inner_radius", "-3"]),
+    ("inner-word", "disk:\n  inner_radius: edge\n", ["disk.inner_radius", "'edge'"]),
+    ("static-inside-ergoregion", "black_hole:\n  spin: 0.9\nobserver:\n  frame: static\n"
+     "  inclination: 90\n  distance: 1.9\n", ["observer.distance", "1.9", "ergoregion"]),
+    ("zamo-inside-horizon", "black_hole:\n  spin: 0.9\nobserver:\n  frame: zamo\n"
+     "  distance: 1.2\n", ["observer.distance", "1.2", "r_+"]),
+    ("width-zero", "image:\n  width: 0\n", ["image.width", "0"]),
+    ("height-negative", "image:\n  height: -16\n", ["image.height", "-16"]),
+    ("too-large-for-memory", "image:\n  width: 60000\n  height: 60000\n",
+     ["image.width", "60000", "tracing.memory_budget"]),
+    ("tolerance-zero", "tracing:\n  tolerance: 0\n", ["tracing.tolerance", "0"]),
+    ("tolerance-negative", "tracing:\n  tolerance: -1.0e-9\n", ["tracing.tolerance", "-1e-09"]),
+    ("field-of-view-zero", "observer:\n  field_of_view: 0\n", ["observer.field_of_view", "0"]),
+    ("anchor-and-alias", "black_hole:\n  spin: &s 0.5\ndisk:\n  index: *s\n",
+     ["anchor", "line 2"]),
+    ("merge-key", "base: &b {spin: 0.5}\nblack_hole:\n  <<: *b\n", ["anchor", "line 1"]),
+    ("python-object-tag", "black_hole: !!python/object:os.system\n  spin: 0.5\n",
+     ["python/object", "line 1"]),
+    ("python-apply-tag", "black_hole:\n  spin: !!python/object/apply:os.system ['true']\n",
+     ["python/object/apply", "line 2"]),
+    ("invalid-yaml-bracket", "black_hole:\n  spin: [0.5\n", ["not valid scene YAML"]),
+    ("invalid-yaml-indent", "black_hole:\n spin: 0.5\n  depth: 2\n",
+     ["not valid scene YAML", "line 3"]),
+    ("invalid-yaml-tab", "black_hole:\n\tspin: 0.5\n", ["not valid scene YAML", "line 2"]),
+    ("repeated-key", "black_hole:\n  spin: 0.5\n  spin: 0.7\n", ["spin", "twice", "line 3"]),
+    ("non-text-key", "7: 0.5\n", ["7", "keys are text"]),
+    ("deep-nesting", "black_hole: " + "[" * 3000 + "]" * 3000 + "\n", ["nested"]),
+    ("too-many-digits", "image:\n  width: 1" + "0" * 5000 + "\n", ["not valid scene YAML"]),
+    ("empty-document", "", ["scene.yaml", "empty"]),
+    ("only-comments", "# a scene with nothing in it\n", ["scene.yaml", "empty"]),
+    ("explicit-null", "~\n", ["scene.yaml", "empty"]),
+    ("list-document", "- black_hole\n- disk\n", ["scene.yaml", "mapping", "list"]),
+    ("scalar-document", "spin 0.5\n", ["scene.yaml", "mapping", "str"]),
+    ("name-dotdot", "name: ..\n", ["name", "'..'"]),
+    ("name-parent-path", "name: ../escaped\n", ["name", "'../escaped'"]),
+    ("name-slash", "name: runs/first\n", ["name", "'runs/first'"]),
+    ("name-backslash", "name: 'runs\\first'\n", ["name", "runs"]),
+    ("name-absolute", "name: /tmp/first\n", ["name", "'/tmp/first'"]),
+    ("name-empty", "name: ''\n", ["name", "''"]),
+    ("name-number", "name: 5\n", ["name", "5"]),
+]
+
+
+@pytest.mark.parametrize("text,fragments", [case[1:] for case in BAD_SCENES],
+                         ids=[case[0] for case in BAD_SCENES])
+def test_bad_scene_is_refused_with_one_line(tmp_path, capsys, no_tracing, text, fragments):
+    scene = tmp_path / "scene.yaml"
+    scene.write_text(text, encoding="utf-8")
+    out_dir = tmp_path / "out"
+    status, out, err = run_cli(["still", str(scene), "--output-dir", str(out_dir)], capsys)
+    assert_one_line_error(status, out, err, fragments)
+    assert not out_dir.exists() or not any(out_dir.iterdir())
+
+
+def test_non_utf8_bytes_are_refused(tmp_path, capsys, no_tracing):
+    scene = tmp_path / "scene.yaml"
+    scene.write_bytes(b"black_hole:\n  spin: 0.5\n# caf\xe9 in Latin-1\n")
+    out_dir = tmp_path / "out"
+    status, out, err = run_cli(["still", str(scene), "--output-dir", str(out_dir)], capsys)
+    # Zero-based offset of \xe9 counted by hand: 12 + 12 bytes of the first two lines
+    # and 5 of "# caf".
+    assert_one_line_error(status, out, err, ["scene.yaml", "UTF-8", "byte 29"])
+    assert not out_dir.exists()
+
+
+def test_oversized_file_is_refused_before_reading(tmp_path, capsys, no_tracing):
+    scene = tmp_path / "scene.yaml"
+    scene.write_text("#" * MAX_SCENE_BYTES + "\n", encoding="utf-8")
+    out_dir = tmp_path / "out"
+    status, out, err = run_cli(["still", str(scene), "--output-dir", str(out_dir)], capsys)
+    assert_one_line_error(status, out, err, [str(MAX_SCENE_BYTES + 1), "bytes"])
+    assert not out_dir.exists()
+
+
+def test_missing_file_is_refused(tmp_path, capsys, no_tracing):
+    status, out, err = run_cli(["still", str(tmp_path / "absent.yaml"), "--output-dir",
+                                str(tmp_path / "out")], capsys)
+    assert_one_line_error(status, out, err, ["absent.yaml", "No such file"])
+
+
+BAD_OVERRIDES = [
+    ("unknown-key", ["bogus.key=1"], ["bogus.key", "'1'"]),
+    ("misspelt-key", ["black_hole.spn=0.5"], ["black_hole.spn", "black_hole.spin"]),
+    ("section-as-key", ["observer=3"], ["observer", "observer.kind"]),
+    ("no-equals", ["black_hole.spin"], ["black_hole.spin", "dotted.key=value"]),
+    ("bad-value", ["black_hole.spin=fast"], ["black_hole.spin", "'fast'"]),
+    ("empty-value", ["black_hole.spin="], ["black_hole.spin", "''"]),
+    ("nan-value", ["observer.inclination=.nan"], ["observer.inclination", "nan"]),
+    ("yaml-error-in-value", ["black_hole.spin=[0.5"], ["black_hole.spin", "not valid"]),
+    ("anchor-in-value", ["black_hole.spin=&a 0.5"], ["anchor"]),
+    ("name-path", ["name=../up"], ["name", "'../up'"]),
+    ("newline-in-key", ["bo\ngus=1"], ["bo\\ngus"]),
+]
+
+
+@pytest.mark.parametrize("overrides,fragments", [case[1:] for case in BAD_OVERRIDES],
+                         ids=[case[0] for case in BAD_OVERRIDES])
+def test_bad_override_is_refused_with_one_line(tmp_path, capsys, no_tracing, overrides,
+                                               fragments):
+    out_dir = tmp_path / "out"
+    args = ["still", "--output-dir", str(out_dir)]
+    for item in overrides:
+        args += ["--set", item]
+    status, out, err = run_cli(args, capsys)
+    assert_one_line_error(status, out, err, fragments)
+    assert not out_dir.exists()
+
+
+def test_override_applies_to_a_scene_file_too(tmp_path, capsys, no_tracing):
+    scene = tmp_path / "scene.yaml"
+    scene.write_text("black_hole:\n  spin: 0.5\n", encoding="utf-8")
+    status, out, err = run_cli(["still", str(scene), "--set", "black_hole.spin=1.0",
+                                "--output-dir", str(tmp_path / "out")], capsys)
+    assert_one_line_error(status, out, err, ["black_hole.spin", "1.0"])
+
+
+# --- the Python API behind the command --------------------------------------------------
+
+
+def test_scene_error_is_a_value_error_with_one_line():
+    with pytest.raises(SceneError) as info:
+        default_scene(**{"black_hole.spin": 2.0})
+    assert isinstance(info.value, ValueError)
+    assert "\n" not in str(info.value) and "black_hole.spin" in str(info.value)
+
+
+def test_default_scene_file_equals_built_in_defaults():
+    from_file = load_scene(REPO / "scenes" / "default.yaml")
+    built_in = default_scene(name="default")
+    assert from_file.values == built_in.values
+
+
+def test_default_scene_file_shows_every_key():
+    # The shipped example is documentation: it must list every key (scene.py's KEYS).
+    document = yaml.safe_load((REPO / "scenes" / "default.yaml").read_text(encoding="utf-8"))
+    shown = {f"{section}.{key}" for section, keys in document.items() if isinstance(keys, dict)
+             for key in keys} | {key for key in document if not isinstance(document[key], dict)}
+    assert shown == set(KEYS)
+
+
+def test_defaults_satisfy_their_own_ranges():
+    scene = default_scene()
+    for path, spec in KEYS.items():
+        value = scene[path]
+        if spec.kind in ("float", "int"):
+            assert spec.low <= value <= spec.high, path
+        if spec.kind == "choice":
+            assert value in spec.choices, path
+
+
+def test_file_name_is_the_default_output_name(tmp_path):
+    scene = tmp_path / "vesper-close.yaml"
+    scene.write_text("black_hole:\n  spin: 0.3\n", encoding="utf-8")
+    assert load_scene(scene)["name"] == "vesper-close"
+    assert load_scene(scene, ["name=other"])["name"] == "other"
+
+
+def test_overrides_are_parsed_as_yaml(tmp_path):
+    scene = default_scene(["black_hole.spin=-0.5", "image.width=0x10", "output.png=false",
+                           "disk.inner_radius=isco", "observer.kind=distant"])
+    assert scene.spin == -0.5
+    assert scene["image.width"] == 16 and isinstance(scene["image.width"], int)  # YAML 1.1 hex
+    assert scene["output.png"] is False
+    assert scene["observer.kind"] == "distant"
+
+
+def test_integral_float_is_accepted_for_an_int_key():
+    scene = default_scene(**{"image.width": 32.0})
+    assert scene["image.width"] == 32 and isinstance(scene["image.width"], int)
+
+
+def test_open_and_closed_bounds():
+    # Closed bounds accept their end points, open ones refuse them (the KEYS table's allowed text).
+    assert default_scene(**{"observer.inclination": 0.0})["observer.inclination"] == 0.0
+    assert default_scene(**{"observer.inclination": 180})["observer.inclination"] == 180.0
+    assert default_scene(**{"black_hole.spin": -0.999999}).spin == -0.999999
+    with pytest.raises(SceneError):
+        default_scene(**{"black_hole.spin": -1.0})
+
+
+def test_inner_radius_at_the_isco_number_is_accepted():
+    # Schwarzschild ISCO = 6 M (Bardeen, Press & Teukolsky 1972, eq. 2.21 at a = 0).
+    scene = default_scene(**{"black_hole.spin": 0.0, "disk.inner_radius": 6.0})
+    assert scene.inner_radius == 6.0
+    assert default_scene(**{"black_hole.spin": 0.0}).inner_radius == pytest.approx(6.0, rel=1e-12)
+
+
+def test_zamo_may_sit_inside_the_ergoregion_where_static_may_not():
+    # Equatorial ergoregion boundary r = 2 M for any spin (MTW 1973, sec. 33.8); a ZAMO
+    # exists down to the horizon, r_+ = 1.436 M at a = 0.9 (Bardeen, Press & Teukolsky 1972).
+    values = {"black_hole.spin": 0.9, "observer.inclination": 90.0, "observer.distance": 1.9}
+    assert default_scene(**values, **{"observer.frame": "zamo"})["observer.distance"] == 1.9
+    with pytest.raises(SceneError):
+        default_scene(**values, **{"observer.frame": "static"})
+    assert default_scene(**{**values, "observer.distance": 2.1},
+                         **{"observer.frame": "static"})["observer.distance"] == 2.1
+
+
+def test_observer_distance_is_not_checked_for_a_distant_observer():
+    scene = default_scene(**{"observer.kind": "distant", "observer.distance": 1.2})
+    assert scene["observer.kind"] == "distant"
+
+
+def test_document_round_trips_through_scene_from_dict():
+    scene = default_scene(**{"black_hole.spin": -0.3, "disk.outer_radius": 35.0,
+                             "observer.frame": "static", "name": "echo"})
+    again = scene_from_dict(scene.document)
+    assert again.values == scene.values
+    assert all(not (isinstance(v, float) and math.isnan(v)) for v in again.values.values())
+
+
+def test_scene_values_are_not_shared_with_the_input_mapping():
+    document = {"black_hole": {"spin": 0.4}}
+    scene = scene_from_dict(document)
+    document["black_hole"]["spin"] = 0.8
+    assert scene.spin == 0.4
+
+
+@pytest.mark.parametrize("key,text,value", [
+    ("tracing.tolerance", "1e-9", 1e-9), ("tracing.max_steps", "6.2e6", 6_200_000),
+    ("disk.outer_radius", "2E3", 2000.0), ("tracing.tolerance", "1.0e-9", 1e-9),
+    ("observer.azimuth", "-4e1", -40.0)])
+def test_exponent_numbers_are_numbers(tmp_path, key, text, value):
+    # YAML 1.2 core-schema floats (YAML 1.2 spec, sec. 10.2.1.4): PyYAML's YAML 1.1 rules
+    # alone would read 1e-9 as the string '1e-9' and refuse it as "not a number".
+    section, leaf = key.split(".")
+    scene = tmp_path / "scene.yaml"
+    scene.write_text(f"{section}:\n  {leaf}: {text}\n", encoding="utf-8")
+    assert load_scene(scene)[key] == value
+    assert default_scene([f"{key}={text}"])[key] == value
+
+
+def test_exponent_rule_does_not_change_plain_pyyaml():
+    # The extra rule lives on the scene loader only; yaml.safe_load keeps YAML 1.1 behaviour.
+    assert yaml.safe_load("x: 1e6") == {"x": "1e6"}
