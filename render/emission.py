@@ -55,7 +55,7 @@ def observed_bolometric(g, emitted):
 
     Examples
     --------
-    >>> observed_bolometric(0.5, 16.0)
+    >>> float(observed_bolometric(0.5, 16.0))
     1.0
     """
     return np.asarray(g) ** 4 * np.asarray(emitted)
