@@ -28,6 +28,7 @@ from .scene import SceneError, Scene, default_scene, load_scene  # noqa: E402
 from .points import trace_points  # noqa: E402
 from .still import StillResult, render_still  # noqa: E402
 from .output import write_still  # noqa: E402
+from .shadow import critical_curve, shadow_moments  # noqa: E402
 
 __all__ = [
     "__version__",
@@ -36,4 +37,5 @@ __all__ = [
     "photon_orbit_radii", "photon_orbit_radius",
     "SceneError", "Scene", "default_scene", "load_scene",
     "trace_points", "StillResult", "render_still", "write_still",
+    "critical_curve", "shadow_moments",
 ]

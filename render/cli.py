@@ -34,7 +34,35 @@ def _parser():
     still.add_argument("--quiet", action="store_true", help="print nothing on success")
 
     commands.add_parser("keys", help="print the scene-key reference (Markdown)")
+
+    measure = commands.add_parser(
+        "measure", help="measure the shadow against the analytic prediction (exit 1 on a miss)")
+    measure.add_argument("scene", help="YAML scene file")
+    measure.add_argument("--set", dest="overrides", action="append", default=[],
+                         metavar="KEY=VALUE", help="override a scene value")
+    measure.add_argument("--output-dir", default="outputs", metavar="DIR",
+                         help="folder the JSON report and overlay PNG go to (default: outputs)")
+    measure.add_argument("--overwrite", action="store_true",
+                         help="replace existing output files of the same name")
+    measure.add_argument("--tolerance", dest="tolerances", action="append", default=[],
+                         metavar="QUANTITY=VALUE",
+                         help="override one tolerance, e.g. area=1e-4 (see docs/measure.md)")
     return parser
+
+
+def _measure(args):
+    from .measure import (format_table, measure_paths, measure_scene, parse_tolerances,
+                          write_measurement)
+    from .output import check_free
+
+    tolerances = parse_tolerances(args.tolerances)
+    scene = _load(args)
+    check_free(measure_paths(scene, args.output_dir).values(), args.overwrite)
+    measurement = measure_scene(scene, tolerances)
+    print(format_table(measurement))
+    for path in write_measurement(measurement, scene, args.output_dir, args.overwrite).values():
+        print(f"wrote {path}")
+    return 0 if measurement.passed else 1
 
 
 def _load(args):
@@ -87,6 +115,8 @@ def main(argv=None):
 
             print(keys_reference())
             return 0
+        if args.command == "measure":
+            return _measure(args)
         return _still(args)
     except (SceneError, OutputExists, OutputFolderError) as exc:
         # One line, whatever the key or file name contained.

@@ -120,6 +120,20 @@ KEYS = {spec.path: spec for spec in [
     _k("output.exposure", "float", 4.0, "-", "0 < exposure <= 1e12",
        "Brightness multiplier of the fixed exposure rule (see README).",
        low=0.0, high=1e12, low_open=True),
+    _k("measure.directions", "int", 512, "-", "16 <= directions <= 65536",
+       "Rays from the shadow's centre along which `nullray measure` bisects its edge.",
+       low=16, high=65536),
+    _k("measure.area_tolerance", "float", 1e-3, "relative", "0 <= area_tolerance <= 1",
+       "Allowed |measured - analytic| / analytic shadow area.", low=0.0, high=1.0),
+    _k("measure.radius_tolerance", "float", 1e-3, "relative", "0 <= radius_tolerance <= 1",
+       "Allowed relative error of the area-equivalent radius sqrt(A/pi).", low=0.0, high=1.0),
+    _k("measure.centroid_tolerance", "float", 0.01, "M", "0 <= centroid_tolerance <= 100",
+       "Allowed error of the shadow's centroid (alpha and beta).", low=0.0, high=100.0),
+    _k("measure.extent_tolerance", "float", 0.01, "M", "0 <= extent_tolerance <= 100",
+       "Allowed error of alpha_min, alpha_max and beta_max.", low=0.0, high=100.0),
+    _k("measure.asymmetry_tolerance", "float", 0.01, "M", "0 <= asymmetry_tolerance <= 100",
+       "Allowed error of the asymmetry 2 rms(R - R_bar) (Johannsen & Psaltis 2010).",
+       low=0.0, high=100.0),
 ]}
 
 SECTIONS = sorted({p.split(".")[0] for p in KEYS if "." in p})
