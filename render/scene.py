@@ -100,10 +100,62 @@ KEYS = {spec.path: spec for spec in [
     _k("disk.orders", "int", 2, "-", "1 <= orders <= 16",
        "Equatorial crossings recorded per ray (order n counts all earlier crossings).",
        low=1, high=16),
-    _k("emission.law", "choice", "power_law", "-", "power_law",
-       "Rest-frame emission law.", choices=("power_law",)),
+    _k("emission.law", "choice", "power_law", "-", "power_law, novikov_thorne, profile",
+       "Rest-frame emission law: power_law (r^-index), novikov_thorne (Page–Thorne flux, "
+       "blackbody), profile (CSV table of r, emissivity).",
+       choices=("power_law", "novikov_thorne", "profile")),
     _k("emission.index", "float", 3.0, "-", "-10 <= index <= 20",
        "Power-law index q of I_em = r^-q.", low=-10.0, high=20.0),
+    _k("emission.accretion_rate", "float", 0.1, "see accretion_unit", "0 < accretion_rate <= 1e40",
+       "Accretion rate of the novikov_thorne disk, in emission.accretion_unit.",
+       low=0.0, high=1e40, low_open=True),
+    _k("emission.accretion_unit", "choice", "eddington", "-", "eddington, g_per_s, msun_per_yr",
+       "eddington: accretion_rate is L/L_Edd with L = (1 - E_isco) Mdot c^2 and "
+       "L_Edd = 4 pi G M c / opacity.", choices=("eddington", "g_per_s", "msun_per_yr")),
+    _k("emission.opacity", "float_or_none", None, "cm^2/g", "null (sigma_T/m_p) or > 0",
+       "Opacity of the Eddington luminosity; null: electron scattering in hydrogen, 0.398.",
+       low=0.0, high=1e6, low_open=True),
+    _k("emission.colour_correction", "float", 1.0, "-", "1 <= colour_correction <= 3",
+       "f_col: the disk emits B_nu(f_col T)/f_col^4 (about 1.7: Shimura & Takahara 1995).",
+       low=1.0, high=3.0),
+    _k("emission.limb_darkening", "choice", "none", "-", "none, electron_scattering",
+       "Angular law in the emitter's frame: none (isotropic) or electron_scattering "
+       "(Chandrasekhar 1960, 1 + 2.06 mu).", choices=("none", "electron_scattering")),
+    _k("emission.profile", "path", None, "-", "a CSV file (relative to the scene file)",
+       "Table 'r, emissivity' (r in M) of the profile law, linearly interpolated."),
+    _k("observing.mode", "choice", "bolometric", "-",
+       "bolometric, monochromatic, true_colour, spectrum, line",
+       "What the still measures (docs/thermal.md).",
+       choices=("bolometric", "monochromatic", "true_colour", "spectrum", "line")),
+    _k("observing.frequency", "float_or_none", None, "Hz", "null or > 0",
+       "Observed frequency of the monochromatic mode.", low=0.0, high=1e30, low_open=True),
+    _k("observing.wavelength", "float_or_none", None, "nm", "null or > 0",
+       "Observed wavelength of the monochromatic mode.", low=0.0, high=1e30, low_open=True),
+    _k("observing.photon_energy", "float_or_none", None, "keV", "null or > 0",
+       "Observed photon energy of the monochromatic mode.", low=0.0, high=1e30, low_open=True),
+    _k("observing.angle_unit", "choice", "uas", "-", "uas, mas",
+       "Unit of the reported pixel scale.", choices=("uas", "mas")),
+    _k("observing.colour_exposure", "choice", "auto", "-", "auto, fixed",
+       "true_colour: auto puts white at the 99.5th percentile of Y; fixed uses "
+       "observing.colour_reference (frames of an animation match).", choices=("auto", "fixed")),
+    _k("observing.colour_reference", "float_or_none", None, "erg s^-1 cm^-2 sr^-1",
+       "null or > 0", "CIE Y shown as white at output.exposure 1 (colour_exposure fixed).",
+       low=0.0, high=1e300, low_open=True),
+    _k("observing.spectrum_low", "float", 1e14, "Hz", "0 < spectrum_low <= 1e30",
+       "Lowest frequency of the spectrum mode.", low=0.0, high=1e30, low_open=True),
+    _k("observing.spectrum_high", "float", 1e19, "Hz", "spectrum_low < spectrum_high <= 1e30",
+       "Highest frequency of the spectrum mode.", low=0.0, high=1e30, low_open=True),
+    _k("observing.spectrum_points", "int", 200, "-", "2 <= spectrum_points <= 10000",
+       "Log-spaced frequencies of the spectrum mode.", low=2, high=10000),
+    _k("observing.line_energy", "float", 6.4, "keV", "0 < line_energy <= 1e6",
+       "Rest energy of the line mode.", low=0.0, high=1e6, low_open=True),
+    _k("observing.line_bins", "int", 200, "-", "1 <= line_bins <= 100000",
+       "Energy bins of the line profile.", low=1, high=100000),
+    _k("observing.line_low", "float", 0.2, "E/E0", "0 <= line_low < line_high",
+       "Low edge of the line bins in units of the rest energy.", low=0.0, high=100.0),
+    _k("observing.line_high", "float", 1.6, "E/E0", "line_low < line_high <= 100",
+       "High edge of the line bins in units of the rest energy.", low=0.0, high=100.0,
+       low_open=True),
     _k("tracing.tolerance", "float", 1e-9, "-", "1e-14 <= tolerance <= 1e-3",
        "Relative tolerance of the adaptive Dormand–Prince 5(4) step control.",
        low=1e-14, high=1e-3),
@@ -117,6 +169,9 @@ KEYS = {spec.path: spec for spec in [
        "Largest memory the output arrays of one still may take.", low=0.01, high=1024.0),
     _k("output.png", "bool", True, "-", "true, false", "Write the tone-mapped 8-bit PNG."),
     _k("output.npz", "bool", True, "-", "true, false", "Write the per-pixel data maps (NPZ)."),
+    _k("output.fits", "bool", False, "-", "true, false",
+       "Also write the physical maps as FITS (needs a novikov_thorne law or a monochromatic "
+       "or line mode; docs/thermal.md)."),
     _k("output.exposure", "float", 4.0, "-", "0 < exposure <= 1e12",
        "Brightness multiplier of the fixed exposure rule (see README).",
        low=0.0, high=1e12, low_open=True),
@@ -124,7 +179,7 @@ KEYS = {spec.path: spec for spec in [
        "Rays from the shadow's centre along which `nullray measure` bisects its edge.",
        low=16, high=65536),
     _k("measure.area_tolerance", "float", 1e-3, "relative", "0 <= area_tolerance <= 1",
-       "Allowed |measured - analytic| / analytic shadow area.", low=0.0, high=1.0),
+       "Allowed relative error of the shadow area, abs(measured - analytic) / analytic.", low=0.0, high=1.0),
     _k("measure.radius_tolerance", "float", 1e-3, "relative", "0 <= radius_tolerance <= 1",
        "Allowed relative error of the area-equivalent radius sqrt(A/pi).", low=0.0, high=1.0),
     _k("measure.centroid_tolerance", "float", 0.01, "M", "0 <= centroid_tolerance <= 100",
@@ -193,6 +248,15 @@ def _coerce(spec, value):
         if value not in spec.choices:
             _fail(key, value, f"one of: {', '.join(spec.choices)}")
         return value
+    if spec.kind == "path":
+        if value is None:
+            return None
+        if not isinstance(value, str) or not value.strip() or len(value) > 4096 or "\0" in value:
+            _fail(key, value, spec.allowed)
+        return value
+    if spec.kind == "float_or_none":
+        if value is None:
+            return None
     if spec.kind == "radius_or_isco":
         if value == "isco":
             return value
@@ -293,6 +357,9 @@ def _check_consistency(values):
         except ValueError as exc:
             raise SceneError(f"observer.distance = {values['observer.distance']!r} is not "
                              f"allowed; {exc}") from None
+    from .observing import check_observing
+
+    check_observing(values)
     pixels = values["image.width"] * values["image.height"]
     orders = values["disk.orders"]
     needed = estimated_bytes(pixels, orders) / 1e9
