@@ -7,9 +7,8 @@ import numpy as np
 
 from . import __version__
 from .camera import camera_rays, distant_observer_rays, image_plane_grid
-from .color import srgb_encode, to_uint8, tone_map
 from .disk import on_disk, redshift_factor
-from .emission import make_emission_law, observed_bolometric
+from .observing import PER_ORDER_PRODUCTS, prepare_observation, shade
 from .geodesics import FATE_DISK, FATE_NAMES
 from .points import trace_bundle
 from .spacetime import horizon_radii, isco_radius
@@ -56,12 +55,14 @@ class StillResult:
     on_disk: np.ndarray
     steps: np.ndarray
     metadata: dict = field(default_factory=dict)
+    products: dict = field(default_factory=dict)
+    tables: dict = field(default_factory=dict)
 
     def maps(self):
         """The per-pixel arrays by name (what the NPZ holds)."""
         return {name: getattr(self, name) for name in (
             "intensity", "pixels", "fate", "alpha", "beta", "r", "phi", "g", "delay",
-            "on_disk", "steps")}
+            "on_disk", "steps")} | dict(self.products)
 
 
 def observer_rays(scene):
@@ -94,6 +95,8 @@ def render_still(scene):
     spin = scene.spin
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
     opaque = scene["disk.surface"] == "opaque"
+    # Emission law and observing mode first: a bad profile table fails before any tracing.
+    observation = prepare_observation(scene)
     alpha, beta, bundle = observer_rays(scene)
     raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
                        max_steps=scene["tracing.max_steps"],
@@ -110,16 +113,11 @@ def render_still(scene):
         rows = np.nonzero(ended_on_disk & (raw["n_crossings"] <= orders))[0]
         keep[rows, last[rows]] = True
         hits &= keep
-    law = make_emission_law(scene["emission.law"], index=scene["emission.index"])
-    with np.errstate(invalid="ignore"):
-        per_order = np.where(hits, observed_bolometric(g, law.intensity(raw["r"])), 0.0)
-    per_order = np.nan_to_num(per_order, nan=0.0)
-    intensity = per_order.sum(axis=1)
-    white = law.intensity(r_in)
-    pixels = to_uint8(srgb_encode(tone_map(intensity, white, scene["output.exposure"])))
+    shaded = shade(observation, scene, raw, g, hits, bundle)
+    intensity, pixels = shaded.intensity, shaded.pixels
 
     def image(a):
-        return a.reshape(height, width)
+        return a.reshape((height, width) + a.shape[1:])
 
     def stack(a):
         return np.ascontiguousarray(np.moveaxis(a, 1, 0).reshape(orders, height, width))
@@ -144,9 +142,13 @@ def render_still(scene):
         "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": r_in,
         "outer_radius": r_out, "fate_counts": counts,
         "steps_mean": float(raw["steps"].mean()),
+        "observing": shaded.info,
         "trace_seconds": traced - started, "total_seconds": time.perf_counter() - started,
     }
     return StillResult(
         intensity=image(intensity), pixels=image(pixels), fate=fate, alpha=alpha, beta=beta,
         r=stack(raw["r"]), phi=stack(raw["phi"]), g=stack(g), delay=stack(raw["delay"]),
-        on_disk=stack(hits), steps=image(raw["steps"]), metadata=metadata)
+        on_disk=stack(hits), steps=image(raw["steps"]), metadata=metadata,
+        products={k: stack(v) if k in PER_ORDER_PRODUCTS else image(v)
+                  for k, v in shaded.products.items()},
+        tables=shaded.tables)
