@@ -545,5 +545,9 @@ def keys_reference():
         default = "scene file's name" if spec.path == "name" else spec.default
         if isinstance(default, bool):
             default = str(default).lower()
+        elif default is None:
+            default = "null"  # as it is written in YAML
+        elif isinstance(default, float) and len(repr(default)) > 10:
+            default = f"{default:.6g}"
         lines.append(f"| `{spec.path}` | {spec.unit} | `{default}` | {spec.allowed} | {spec.doc} |")
     return "\n".join(lines)
