@@ -52,6 +52,8 @@ Synge (1966), MNRAS 131, 463.
 Johannsen & Psaltis (2010), ApJ 718, 446.
 """
 
+import math
+
 import numpy as np
 from scipy.optimize import brentq, minimize_scalar
 
@@ -308,7 +310,8 @@ def closed_curve_moments(alpha, beta, *, smooth=True):
     """
     x = np.asarray(alpha, dtype=float).ravel()
     y = np.asarray(beta, dtype=float).ravel()
-    if x.size > 1 and x[0] == x[-1] and y[0] == y[-1]:
+    scale = max(float(np.ptp(x)), float(np.ptp(y)), 1e-300) if x.size else 1.0
+    if x.size > 1 and math.hypot(x[-1] - x[0], y[-1] - y[0]) <= 1e-12 * scale:
         x, y = x[:-1], y[:-1]
     n = x.size
     if n < 3:
