@@ -77,11 +77,16 @@ def _still(args):
     from .output import check_free, still_paths, write_still
     from .still import render_still
 
+    from .observing import prepare_observation
+    from .products import product_paths, write_products
+
     scene = _load(args)
+    prepare_observation(scene)  # reads an emission profile table: fail before any file is made
     folder = Path(args.output_dir)
     # Refuse before any work if a target exists (nothing the user made is
     # overwritten silently).
-    check_free(still_paths(scene.document, folder).values(), args.overwrite)
+    check_free(list(still_paths(scene.document, folder).values())
+               + list(product_paths(scene.document, folder).values()), args.overwrite)
     # Likewise make sure the folder can be written before the (long) render.
     try:
         folder.mkdir(parents=True, exist_ok=True)
@@ -92,12 +97,18 @@ def _still(args):
         raise OutputFolderError(f"--output-dir {str(folder)!r} is not writable")
     result = render_still(scene)
     paths = write_still(result, folder, overwrite=args.overwrite)
+    paths.update(write_products(result, folder, overwrite=args.overwrite))
     if not args.quiet:
         meta = result.metadata
         counts = ", ".join(f"{k} {v}" for k, v in meta["fate_counts"].items())
         print(f"rendered {scene['image.width']}x{scene['image.height']} in "
               f"{meta['total_seconds']:.2f} s (spin {scene.spin:g}, inclination "
               f"{scene['observer.inclination']:g} deg, ISCO {meta['isco']:.4f} M); pixels: {counts}")
+        observed = meta.get("observing", {})
+        if "total_flux_jy" in observed:
+            print(f"total flux density {observed['total_flux_jy']:.4g} Jy at "
+                  f"{observed['frequency_hz']:.4g} Hz; pixel {observed['pixel_scale']:.4g} "
+                  f"{observed['pixel_scale_unit']}")
         for path in paths.values():
             print(f"wrote {path}")
     return 0
