@@ -475,8 +475,7 @@ def check_field_of_view(scene, curve):
     c, s = math.cos(roll), math.sin(roll)
     x = c * curve[0] + s * curve[1]
     y = -s * curve[0] + c * curve[1]
-    # One pixel of margin, so that the mask of captured pixels is closed too.
-    if (np.max(np.abs(x)) > 0.5 * width * h - h) or (np.max(np.abs(y)) > 0.5 * height * h - h):
+    if (np.max(np.abs(x)) >= 0.5 * width * h) or (np.max(np.abs(y)) >= 0.5 * height * h):
         raise MeasureError(
             f"the field of view ({width * h:.4g} M x {height * h:.4g} M) does not contain the "
             f"whole shadow (alpha {curve[0].min():.4g} .. {curve[0].max():.4g} M, beta "
@@ -517,6 +516,10 @@ def measure_scene(scene, tolerances=None, result=None):
     if not np.any(captured):
         raise MeasureError("no captured pixels in the image: the shadow is smaller than a pixel "
                            "or hidden; raise image.width or narrow observer.field_of_view")
+    border = np.concatenate([captured[0], captured[-1], captured[:, 0], captured[:, -1]])
+    if np.any(border):
+        raise MeasureError("the field of view does not contain the whole shadow (captured "
+                           "pixels touch the image's edge); widen observer.field_of_view")
     centre = (float(result.alpha[captured].mean()), float(result.beta[captured].mean()))
     trace = fate_tracer(scene)
     n_directions = scene["measure.directions"]
