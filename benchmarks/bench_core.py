@@ -145,7 +145,7 @@ def subset(bundle, index):
 
 
 def time_kernel(bundle, repeats, tolerance):
-    """Wall and CPU seconds (all threads) of ``repeats`` traces of ``bundle``, and the last result."""
+    """Wall and CPU seconds (all threads) of repeated traces of ``bundle``; the last result."""
     from render.points import trace_bundle
     wall, cpu = [], []
     raw = None
