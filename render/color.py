@@ -78,7 +78,8 @@ def desaturate_into_gamut(rgb):
     with np.errstate(invalid="ignore", divide="ignore"):
         s = np.where(low < 0.0, luminance / (luminance - low), 1.0)
     s = np.clip(np.nan_to_num(s, nan=0.0), 0.0, 1.0)
-    return np.maximum(luminance + s * (rgb - luminance), 0.0)
+    mixed = np.maximum(luminance + s * (rgb - luminance), 0.0)
+    return np.where(low < 0.0, mixed, rgb)
 
 
 def expose_true_colour(xyz, reference_y, exposure=1.0):
