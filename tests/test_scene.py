@@ -122,7 +122,8 @@ BAD_SCENES = [
     ("invalid-yaml-tab", "black_hole:\n\tspin: 0.5\n", ["not valid scene YAML", "line 2"]),
     ("repeated-key", "black_hole:\n  spin: 0.5\n  spin: 0.7\n", ["spin", "twice", "line 3"]),
     ("non-text-key", "7: 0.5\n", ["7", "keys are text"]),
-    ("deep-nesting", "black_hole: " + "[" * 3000 + "]" * 3000 + "\n", ["nested"]),
+    # Deep enough to exhaust the parser's recursion under the default limit of 1000 frames.
+    ("deep-nesting", "black_hole: " + "[" * 500 + "]" * 500 + "\n", ["nested"]),
     ("too-many-digits", "image:\n  width: 1" + "0" * 5000 + "\n", ["not valid scene YAML"]),
     ("empty-document", "", ["scene.yaml", "empty"]),
     ("only-comments", "# a scene with nothing in it\n", ["scene.yaml", "empty"]),
@@ -331,3 +332,45 @@ def test_exponent_numbers_are_numbers(tmp_path, key, text, value):
 def test_exponent_rule_does_not_change_plain_pyyaml():
     # The extra rule lives on the scene loader only; yaml.safe_load keeps YAML 1.1 behaviour.
     assert yaml.safe_load("x: 1e6") == {"x": "1e6"}
+
+
+# Cases that need a second file beside the scene: (id, scene text, {file name: bytes}, fragments).
+BAD_SCENES_WITH_FILES = [
+    ("profile-law-without-table", "emission:\n  law: profile\n", {},
+     ["emission.law", "'profile'", "emission.profile"]),
+    ("profile-table-missing", "emission:\n  law: profile\n  profile: absent.csv\n", {},
+     ["absent.csv", "No such file"]),
+    ("profile-table-not-numbers", "emission:\n  law: profile\n  profile: table.csv\n",
+     {"table.csv": b"r,emissivity\nsix,1.0\n"}, ["table.csv", "row 2", "'six'"]),
+    ("profile-table-not-utf8", "emission:\n  law: profile\n  profile: table.csv\n",
+     {"table.csv": b"r,emissivity\n6,\xff\n"}, ["table.csv"]),
+    ("profile-table-is-a-folder", "emission:\n  law: profile\n  profile: sub\n",
+     {"sub/keep": b""}, ["sub"]),
+    ("profile-not-a-name", "emission:\n  law: profile\n  profile: [1, 2]\n", {},
+     ["emission.profile", "[1, 2]"]),
+    ("monochromatic-without-band", "observing:\n  mode: monochromatic\n", {},
+     ["observing.mode", "'monochromatic'", "got 0"]),
+    ("monochromatic-two-bands", "observing:\n  mode: monochromatic\n  frequency: 1.0e15\n"
+     "  wavelength: 500\n", {}, ["observing.mode", "got 2"]),
+    ("line-bins-reversed", "observing:\n  mode: line\n  line_low: 2.0\n", {},
+     ["observing.line_high", "1.6", "observing.line_low"]),
+    ("spectrum-band-reversed", "observing:\n  spectrum_low: 1e20\n", {},
+     ["observing.spectrum_high", "observing.spectrum_low"]),
+    ("negative-opacity", "emission:\n  law: novikov_thorne\n  opacity: -1\n", {},
+     ["emission.opacity", "-1"]),
+]
+
+
+@pytest.mark.parametrize("text,files,fragments", [c[1:] for c in BAD_SCENES_WITH_FILES],
+                         ids=[c[0] for c in BAD_SCENES_WITH_FILES])
+def test_bad_scene_with_side_files_is_refused(tmp_path, capsys, no_tracing, text, files,
+                                              fragments):
+    for name, content in files.items():
+        (tmp_path / name).parent.mkdir(parents=True, exist_ok=True)
+        (tmp_path / name).write_bytes(content)
+    scene = tmp_path / "scene.yaml"
+    scene.write_text(text, encoding="utf-8")
+    out_dir = tmp_path / "out"
+    status, out, err = run_cli(["still", str(scene), "--output-dir", str(out_dir)], capsys)
+    assert_one_line_error(status, out, err, fragments)
+    assert not out_dir.exists()
