@@ -289,3 +289,28 @@ def test_readme_python_snippet_runs(tmp_path, monkeypatch, capsys):
                                                                         "api-demo.png"]
     # Schwarzschild ISCO 6 M; r_+ = 1 + sqrt(1 - 0.81) (Bardeen, Press & Teukolsky 1972).
     assert out[2].startswith("6.0 (1.43588989")
+
+
+def test_existing_extra_product_is_not_overwritten(tmp_path, capsys, no_tracing):
+    # The no-overwrite check covers every file a still would write, not only PNG and NPZ.
+    fits = tmp_path / "default.fits"
+    fits.write_bytes(b"SIMPLE  =                    T")
+    status, out, err = run_cli(["still", *SMALL, "--set", "output.fits=true",
+                                "--output-dir", tmp_path], capsys)
+    assert status == EXIT_BAD_INPUT and str(fits) in err and err.count("\n") == 1
+    assert [p.name for p in tmp_path.iterdir()] == ["default.fits"]
+    assert fits.read_bytes() == b"SIMPLE  =                    T"
+
+
+def test_interrupt_exits_130_and_writes_nothing(tmp_path, capsys, monkeypatch):
+    import render.still
+
+    def interrupted(scene, *args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(render.still, "render_still", interrupted)
+    status, out, err = run_cli(["still", *SMALL, "--output-dir", tmp_path / "out"], capsys)
+    assert status == 130  # 128 + SIGINT (common practice for shells)
+    assert err.count("\n") == 1 and "interrupted" in err and "Traceback" not in err
+    out_dir = tmp_path / "out"
+    assert not out_dir.exists() or not any(out_dir.iterdir())
