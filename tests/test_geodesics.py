@@ -54,7 +54,7 @@ def periastron(b):
     """Closest approach r0 (M) of a Schwarzschild ray with impact parameter b > sqrt(27).
 
     Largest root of r^3 - b^2 r + 2 b^2 = 0 (turning point of (dr/dphi)^2 =
-    r^4/b^2 - r^2 + 2r; e.g. Chandrasekhar 1983, sec. 20), by the trigonometric
+    r^4/b^2 - r^2 + 2r; e.g. Chandrasekhar 1983, ch. 3, from memory), by the trigonometric
     form of Cardano's solution.
     """
     return 2.0 * b / math.sqrt(3.0) * math.cos(math.acos(-3.0 * math.sqrt(3.0) / b) / 3.0)
@@ -78,7 +78,7 @@ def quadrature_deflection(b):
     """delta = 2 int_0^{u0} du / sqrt(1/b^2 - u^2 + 2u^3) - pi by scipy.integrate.quad.
 
     The orbit equation (du/dphi)^2 = 1/b^2 - u^2 + 2u^3 (Schwarzschild, u = M/r;
-    e.g. Misner, Thorne & Wheeler 1973, eq. 25.58).  The substitution
+    e.g. Misner, Thorne & Wheeler 1973, sec. 25.6, from memory).  The substitution
     u = u0 (1 - s^2) removes the inverse-square-root singularity at u0 = 1/r0.
     """
     u0 = 1.0 / periastron(b)
@@ -134,7 +134,7 @@ def test_deflection_matches_darwin(equatorial_deflections):
 def test_weak_field_deflection(equatorial_deflections):
     # Einstein (1916): delta -> 4M/b; the next term is 15 pi M^2 / (4 b^2) (Epstein &
     # Shapiro 1980, Phys. Rev. D 22, 2947; Keeton & Petters 2005, Phys. Rev. D 72,
-    # 104006, eq. 26, from memory) and the one after is 128 M^3 / (3 b^3).  So the
+    # 104006; from memory) and the one after is 128 M^3 / (3 b^3).  So the
     # excess over 4M/b must be 15 pi/(4 b^2) within that third-order term (plus the
     # 1e-9 rad numerical floor).
     b, deflection = equatorial_deflections
@@ -151,7 +151,7 @@ def test_weak_field_deflection(equatorial_deflections):
 
 def test_face_on_schwarzschild_redshift():
     # Face-on (lam = 0): no Doppler term, g = 1/u^t = sqrt(1 - 3M/r) for a circular
-    # Schwarzschild orbit (standard result, e.g. Luminet 1979, eq. 15 with lam = 0).
+    # Schwarzschild orbit (standard result; Luminet 1979, from memory).
     # Both the direct (n = 0) and the first lensed (n = 1) image; 1e-10 is rounding.
     rng = np.random.default_rng(7)
     # 5.5 < b < 6.1 M: the n = 1 image of r > 6 M; b > 7 M: the n = 0 image of r > 6 M.
@@ -180,7 +180,7 @@ def hamiltonian(r, theta, p_r, p_theta, lam, a):
     """H = (1/2) g^{mu nu} p_mu p_nu for p_t = -1, p_phi = lam (works for complex r, theta).
 
     Inverse Kerr metric in Boyer–Lindquist coordinates (e.g. Misner, Thorne &
-    Wheeler 1973, eq. 33.2 inverted): g^tt = -A/(Sigma Delta),
+    Wheeler 1973, eq. 33.2 inverted, from memory): g^tt = -A/(Sigma Delta),
     g^tphi = -2ar/(Sigma Delta), g^phiphi = (Delta - a^2 sin^2)/(Sigma Delta sin^2),
     g^rr = Delta/Sigma, g^thth = 1/Sigma.
     """

@@ -47,7 +47,7 @@ def circular_orbit_from_metric(r, a):
 
     A circular orbit u = u^t (1, 0, 0, Omega) is a geodesic iff
     d_r g_tt + 2 Omega d_r g_tphi + Omega^2 d_r g_phiphi = 0 (radial component of
-    the geodesic equation; e.g. Misner, Thorne & Wheeler 1973, ex. 33.3); the root
+    the geodesic equation for dr/dtau = 0; common practice); the root
     with Omega > 0 moves in +phi.  u^t follows from u.u = -1, E = -u_t, L = u_phi.
     Works with complex r too (for complex-step derivatives).
     """

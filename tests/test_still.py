@@ -49,7 +49,7 @@ def test_face_on_schwarzschild_redshift_on_image(small_scene):
 @pytest.mark.parametrize("inclination", [30.0, 0.0])
 def test_opposite_inclinations_give_mirror_images(small_scene, inclination):
     # Reflection symmetry of Kerr about the equatorial plane (theta -> pi - theta;
-    # e.g. Chandrasekhar 1983, sec. 57): the observer at 180 - i sees the image of the
+    # common practice): the observer at 180 - i sees the image of the
     # observer at i flipped top to bottom (beta -> -beta).  Fates must agree exactly:
     # a flip would need a pixel centre within rounding of a fate boundary.
     common = {"black_hole.spin": 0.7, "disk.orders": 3}
