@@ -28,6 +28,14 @@ from .scene import SceneError, Scene, default_scene, load_scene  # noqa: E402
 from .points import trace_points  # noqa: E402
 from .still import StillResult, render_still  # noqa: E402
 from .output import write_still  # noqa: E402
+from .thermal import (  # noqa: E402
+    eddington_luminosity,
+    effective_temperature,
+    page_thorne_flux,
+    planck_nu,
+    radiative_efficiency,
+)
+from .products import write_products  # noqa: E402
 from .shadow import critical_curve, shadow_moments  # noqa: E402
 
 __all__ = [
@@ -37,5 +45,7 @@ __all__ = [
     "photon_orbit_radii", "photon_orbit_radius",
     "SceneError", "Scene", "default_scene", "load_scene",
     "trace_points", "StillResult", "render_still", "write_still",
+    "radiative_efficiency", "page_thorne_flux", "effective_temperature",
+    "eddington_luminosity", "planck_nu", "write_products",
     "critical_curve", "shadow_moments",
 ]
