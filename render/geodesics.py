@@ -142,9 +142,11 @@ def _dopri_step(y, k1, h, spin, lam, eta, k, y_out, rtol, atol):
         e = h * (_E1 * k1[i] + _E3 * k[1, i] + _E4 * k[2, i] + _E5 * k[3, i]
                  + _E6 * k[4, i] + _E7 * k[5, i])
         # u = 1/r needs a tiny absolute floor (relative accuracy in r at large
-        # r); mu, the Mino velocities and phi are O(1) and cross zero, where a
-        # relative criterion alone would force needlessly small steps.
-        floor = atol if i == 0 else rtol
+        # r), and so does phi (it swings by ~pi on passes near the axis, and a
+        # loose floor there let its error grow to ~1e3 x the tolerance); mu and
+        # the Mino velocities are O(1) and cross zero, where a relative
+        # criterion alone would force needlessly small steps.
+        floor = atol if (i == 0 or i == 4) else rtol
         scale = floor + rtol * max(abs(y[i]), abs(y_out[i]))
         total += (e / scale) ** 2
     return math.sqrt(total / N_CONTROLLED)
@@ -290,7 +292,7 @@ def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
         1/r at which a ray counts as captured (just outside the horizon).
     tolerance : float
         Tolerance of the step control: relative for every component, plus an
-        absolute floor equal to it (1e-3 of it for u = 1/r).
+        absolute floor equal to it (1e-3 of it for u = 1/r and phi).
     max_steps, max_crossings : int
         Caps: a ray that reaches either gets the fate "unresolved".
     n_record : int
