@@ -40,14 +40,15 @@ def atomic_write(path, write, overwrite=False):
         # mkstemp creates the file 0600; give it the mode a plain open() would.
         umask = os.umask(0)
         os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
         with os.fdopen(fd, "wb") as handle:
+            os.fchmod(handle.fileno(), 0o666 & ~umask)
             write(handle)
             handle.flush()
             os.fsync(handle.fileno())
-        if not overwrite and path.exists():
-            raise OutputExists(f"{path} appeared while writing; not replaced")
-        os.replace(tmp, path)
+        if overwrite:
+            os.replace(tmp, path)
+        else:
+            _publish_new(tmp, path)
     except BaseException:
         try:
             os.unlink(tmp)
@@ -55,6 +56,23 @@ def atomic_write(path, write, overwrite=False):
             pass
         raise
     return path
+
+
+def _publish_new(tmp, path):
+    """Give ``tmp`` the name ``path`` only if no file has that name, without a race window."""
+    try:
+        # link() refuses an existing name atomically, where exists() + replace() would
+        # leave a gap in which another process's file could be replaced.
+        os.link(tmp, path)
+    except FileExistsError:
+        raise OutputExists(f"{path} appeared while writing; not replaced") from None
+    except OSError:
+        # No hard links on this file system (some FAT or network mounts): check, then rename.
+        if path.exists():
+            raise OutputExists(f"{path} appeared while writing; not replaced") from None
+        os.replace(tmp, path)
+        return
+    os.unlink(tmp)
 
 
 def write_png(path, pixels, overwrite=False, metadata=None):

@@ -156,3 +156,19 @@ def test_npz_round_trips_arrays_and_json_metadata(tmp_path):
         echoed = json.loads(str(data["metadata"]))
     assert echoed == {"scene": {"black_hole": {"spin": 0.25}}, "count": 3, "isco": 5.0,
                       "list": [0, 1, 2]}
+
+
+def test_file_systems_without_hard_links_still_work(tmp_path, monkeypatch):
+    # Some mounts refuse link(); the writer then falls back to check-and-rename.
+    def no_links(src, dst, *args, **kwargs):
+        raise PermissionError(1, "Operation not permitted")
+
+    monkeypatch.setattr(output.os, "link", no_links)
+    target = tmp_path / "data.bin"
+    atomic_write(target, lambda f: f.write(b"fallback"))
+    assert target.read_bytes() == b"fallback"
+    with pytest.raises(OutputExists):
+        atomic_write(tmp_path / "late.bin",
+                     lambda f: (tmp_path / "late.bin").write_bytes(b"first") or f.write(b"x"))
+    assert (tmp_path / "late.bin").read_bytes() == b"first"
+    assert leftovers(tmp_path) == []
