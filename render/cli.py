@@ -15,6 +15,17 @@ class OutputFolderError(Exception):
     """The --output-dir cannot be created or written; the message is one line."""
 
 
+def _add_common_options(command):
+    """--set, --output-dir and --overwrite, shared by the commands that write files."""
+    command.add_argument("--set", dest="overrides", action="append", default=[],
+                         metavar="KEY=VALUE",
+                         help="override a scene value, e.g. black_hole.spin=0.5")
+    command.add_argument("--output-dir", default="outputs", metavar="DIR",
+                         help="folder the files are written to (default: outputs)")
+    command.add_argument("--overwrite", action="store_true",
+                         help="replace existing output files of the same name")
+
+
 def _parser():
     parser = argparse.ArgumentParser(
         prog="nullray",
@@ -25,12 +36,7 @@ def _parser():
 
     still = commands.add_parser("still", help="render one image and its data maps")
     still.add_argument("scene", nargs="?", help="YAML scene file (default: built-in default scene)")
-    still.add_argument("--set", dest="overrides", action="append", default=[],
-                       metavar="KEY=VALUE", help="override a scene value, e.g. black_hole.spin=0.5")
-    still.add_argument("--output-dir", default="outputs", metavar="DIR",
-                       help="folder the files are written to (default: outputs)")
-    still.add_argument("--overwrite", action="store_true",
-                       help="replace existing output files of the same name")
+    _add_common_options(still)
     still.add_argument("--quiet", action="store_true", help="print nothing on success")
 
     commands.add_parser("keys", help="print the scene-key reference (Markdown)")
@@ -38,12 +44,7 @@ def _parser():
     measure = commands.add_parser(
         "measure", help="measure the shadow against the analytic prediction (exit 1 on a miss)")
     measure.add_argument("scene", help="YAML scene file")
-    measure.add_argument("--set", dest="overrides", action="append", default=[],
-                         metavar="KEY=VALUE", help="override a scene value")
-    measure.add_argument("--output-dir", default="outputs", metavar="DIR",
-                         help="folder the JSON report and overlay PNG go to (default: outputs)")
-    measure.add_argument("--overwrite", action="store_true",
-                         help="replace existing output files of the same name")
+    _add_common_options(measure)
     measure.add_argument("--tolerance", dest="tolerances", action="append", default=[],
                          metavar="QUANTITY=VALUE",
                          help="override one tolerance, e.g. area=1e-4 (see docs/measure.md)")

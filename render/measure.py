@@ -49,7 +49,7 @@ import numpy as np
 
 from .camera import camera_rays, distant_observer_rays
 from .geodesics import FATE_CAPTURED, FATE_ESCAPED
-from .output import atomic_write, check_free
+from .output import atomic_write, check_free, jsonable
 from .points import trace_bundle, trace_points
 from .scene import SceneError
 from .shadow import closed_curve_moments, critical_curve, shadow_moments
@@ -674,16 +674,10 @@ def write_measurement(measurement, scene, folder="outputs", overwrite=False):
     """Write the JSON report and the overlay PNG atomically; returns {kind: Path}."""
     paths = measure_paths(scene, folder)
     check_free(paths.values(), overwrite)
-    text = json.dumps(measurement.report, indent=2, sort_keys=False, default=_jsonable) + "\n"
+    text = json.dumps(measurement.report, indent=2, sort_keys=False, default=jsonable) + "\n"
     png = overlay_png_bytes(measurement, scene)
     atomic_write(paths["json"], lambda f: f.write(text.encode("utf-8")), overwrite)
     atomic_write(paths["png"], lambda f: f.write(png), overwrite)
     return paths
 
 
-def _jsonable(value):
-    if isinstance(value, np.generic):
-        return value.item()
-    if isinstance(value, np.ndarray):
-        return value.tolist()
-    raise TypeError(f"not JSON serialisable: {type(value).__name__}")

@@ -89,11 +89,12 @@ def write_png(path, pixels, overwrite=False, metadata=None):
 def write_npz(path, arrays, metadata, overwrite=False):
     """Write arrays plus a JSON ``metadata`` string entry to a compressed NPZ, atomically."""
     payload = dict(arrays)
-    payload["metadata"] = np.array(json.dumps(metadata, sort_keys=True, default=_jsonable))
+    payload["metadata"] = np.array(json.dumps(metadata, sort_keys=True, default=jsonable))
     return atomic_write(path, lambda f: np.savez_compressed(f, **payload), overwrite)
 
 
-def _jsonable(value):
+def jsonable(value):
+    """``json.dumps`` default for numpy scalars and arrays."""
     if isinstance(value, np.generic):
         return value.item()
     if isinstance(value, np.ndarray):
