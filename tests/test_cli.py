@@ -20,26 +20,14 @@ import render.points
 from render.cli import EXIT_BAD_INPUT, main
 from render.scene import KEYS, load_scene, scene_from_dict
 
+from conftest import run_cli  # noqa: E402  (shared test helpers)
+
 REPO = Path(__file__).resolve().parents[1]
 WIDTH, HEIGHT, ORDERS = 32, 16, 3
 SMALL = [f"--set=image.width={WIDTH}", f"--set=image.height={HEIGHT}",
          f"--set=disk.orders={ORDERS}"]
 
 
-@pytest.fixture
-def no_tracing(monkeypatch):
-    """Make any call of the numba kernel fail the test: errors must come first."""
-
-    def refuse(*args, **kwargs):
-        raise AssertionError("the ray-tracing kernel ran although the input was bad")
-
-    monkeypatch.setattr(render.points, "trace_rays", refuse)
-
-
-def run_cli(args, capsys):
-    status = main([str(a) for a in args])
-    captured = capsys.readouterr()
-    return status, captured.out, captured.err
 
 
 # --- real subprocesses --------------------------------------------------------------------

@@ -24,24 +24,11 @@ from render.scene import (
     scene_from_dict,
 )
 
+from conftest import run_cli  # noqa: E402  (shared test helpers)
+
 REPO = Path(__file__).resolve().parents[1]
 
 
-@pytest.fixture
-def no_tracing(monkeypatch):
-    """Make any call of the numba kernel fail the test: errors must come first."""
-
-    def refuse(*args, **kwargs):
-        raise AssertionError("the ray-tracing kernel ran although the input was bad")
-
-    monkeypatch.setattr(render.points, "trace_rays", refuse)
-
-
-def run_cli(args, capsys):
-    """Run ``nullray`` in-process; return (exit status, stdout, stderr)."""
-    status = main(args)
-    captured = capsys.readouterr()
-    return status, captured.out, captured.err
 
 
 def assert_one_line_error(status, out, err, fragments):
