@@ -79,7 +79,7 @@ _B1, _B3, _B4, _B5, _B6 = 35.0 / 384.0, 500.0 / 1113.0, 125.0 / 192.0, -2187.0 /
 _E1, _E3, _E4, _E5, _E6, _E7 = (
     71.0 / 57600.0, -71.0 / 16695.0, 71.0 / 1920.0, -17253.0 / 339200.0, 22.0 / 525.0, -1.0 / 40.0)
 
-@njit(cache=True, inline="always", fastmath=_FAST)
+@njit(cache=True, inline="always", fastmath=_FAST, error_model="numpy")
 def _derivatives(y, spin, lam, eta, out):
     """Backward Mino-time derivatives of the state ``y`` into ``out`` (no trigonometry)."""
     u = y[0]
@@ -109,7 +109,7 @@ def _derivatives(y, spin, lam, eta, out):
     out[5] = (1.0 + a2 * u * u) / delta_u * (excess + a2 - spin * lam) - spin * (spin * sin2 - lam)
 
 
-@njit(cache=True, fastmath=_FAST)
+@njit(cache=True, fastmath=_FAST, error_model="numpy")
 def _dopri_step(y, k1, h, spin, lam, eta, k, y_out, rtol, atol):
     """One Dormand–Prince 5(4) step of size h from y (with k1 = f(y)).
 
@@ -161,7 +161,7 @@ def _hermite(v0, v1, d0, d1, s):
             + (-2.0 * s3 + 3.0 * s2) * v1 + (s3 - s2) * d1)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def _hermite_root(v0, v1, d0, d1, target):
     """Fraction s in [0, 1] where the Hermite interpolant meets ``target`` (bisection)."""
     lo = 0.0
@@ -178,7 +178,7 @@ def _hermite_root(v0, v1, d0, d1, target):
     return 0.5 * (lo + hi)
 
 
-@njit(cache=True)
+@njit(cache=True, error_model="numpy")
 def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
                max_steps, max_crossings, n_record, stop_on_disk, r_in, r_out,
                out_r, out_phi, out_delay, out_inward, row):
@@ -273,7 +273,7 @@ def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
     return fate, n_cross, steps, theta_end, phi_end
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, error_model="numpy")
 def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
                max_steps, max_crossings, n_record, stop_on_disk, r_in, r_out):
     """Trace many rays in parallel (one ``prange`` iteration per ray).
