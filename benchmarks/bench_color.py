@@ -26,6 +26,12 @@ def main():
     parser.add_argument("--size", type=int, default=512)
     parser.add_argument("--repeat", type=int, default=3)
     args = parser.parse_args()
+    print(json.dumps(measure_colour_overhead(args.size, args.repeat)))
+
+
+def measure_colour_overhead(size=512, repeat=3):
+    """The figures of this benchmark as a dict (also used by bench_core.py)."""
+    args = argparse.Namespace(size=size, repeat=repeat)
 
     from render import default_scene
     from render.cie import blackbody_xyz_table
@@ -72,7 +78,7 @@ def main():
     shade_colour = timed(colour)
     render_median = statistics.median(renders)
     overhead = (shade_colour - shade_bolometric) / render_median
-    print(json.dumps({
+    return {
         "benchmark": "true_colour_shading", "size": args.size, "repeat": args.repeat,
         "render_bolometric_seconds": round(render_median, 4),
         "shade_bolometric_seconds": round(shade_bolometric, 4),
@@ -81,7 +87,7 @@ def main():
         "overhead_fraction": round(overhead, 4), "target_overhead_fraction": 0.30,
         "within_target": bool(overhead <= 0.30),
         "disk_crossings": int(np.count_nonzero(hits)),
-    }))
+    }
 
 
 if __name__ == "__main__":
