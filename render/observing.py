@@ -240,12 +240,13 @@ def shade(obs, scene, raw, g, hits, bundle):
             "relativistic_peak": float(tables["spectrum"]["flux_relativistic_jy"].max()),
             "flat_peak": float(tables["spectrum"]["flux_flat_jy"].max())}
     elif obs.mode == "line":
-        from .spectra import line_profile
+        from .spectra import line_profile, redshift_spread
 
+        spread = redshift_spread(g, hits, scene["image.height"], scene["image.width"])
         line, image, line_info = line_profile(
             g, law.intensity(r) * weight, hits, scene["observing.line_energy"],
             scene["observing.line_bins"], scene["observing.line_low"],
-            scene["observing.line_high"])
+            scene["observing.line_high"], g_spread=spread)
         tables["line"] = line
         intensity = image
         pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
