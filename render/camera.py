@@ -126,10 +126,10 @@ def image_plane_grid(width, height, field_of_view, roll_deg=0.0):
 
 
 def _polar_position(inclination_deg):
-    """(theta, sin, cos) with exact values on the axis so that L = 0 there."""
-    if inclination_deg == 0.0:
+    """(theta, sin, cos), exactly on the axis (L = 0) within 1e-7 deg of it (sin^2 underflows)."""
+    if inclination_deg < 1e-7:
         return 0.0, 0.0, 1.0
-    if inclination_deg == 180.0:
+    if inclination_deg > 180.0 - 1e-7:
         return np.pi, 0.0, -1.0
     theta = np.radians(inclination_deg)
     return theta, np.sin(theta), np.cos(theta)

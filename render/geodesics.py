@@ -181,16 +181,27 @@ def _hermite_root(v0, v1, d0, d1, target):
 @njit(cache=True, error_model="numpy")
 def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
                max_steps, max_crossings, n_record, stop_on_disk, r_in, r_out,
-               out_r, out_phi, out_delay, out_inward, row):
-    """Trace one ray; fill crossing rows; return (fate, n_crossings, steps, theta_end, phi_end)."""
+               out_r, out_phi, out_delay, out_inward, row, record_final, out_final):
+    """Trace one ray; fill crossing rows; return (fate, n_crossings, steps, theta_end, phi_end).
+
+    With ``record_final`` the state where the ray ended is written to
+    ``out_final[row]``: the refined crossing state for a disk hit or a crossing
+    cap, the accepted step that passed the capture or escape radius, or the
+    last accepted state when the step cap was reached.
+    """
     y = np.empty(N_STATE)
     y_new = np.empty(N_STATE)
     y_part = np.empty(N_STATE)
     f = np.empty(N_STATE)
     k = np.empty((7, N_STATE))
     k_part = np.empty((7, N_STATE))
+    is_finite = math.isfinite(lam) and math.isfinite(eta)
     for i in range(N_STATE):
         y[i] = y0[i]
+        is_finite = is_finite and math.isfinite(y0[i])
+    if not is_finite:
+        # Every step would be rejected: stop at once instead of spending max_steps.
+        return FATE_UNRESOLVED, 0, 0, np.nan, np.nan
     _derivatives(y, spin, lam, eta, f)
     # Rays with lam = 0 reach the axis: each polar turning point is then a
     # passage through a pole, where the azimuth jumps by pi.
@@ -247,12 +258,18 @@ def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
                 n_cross += 1
                 if stop_on_disk and r_in <= r_c <= r_out:
                     fate = FATE_DISK
+                    if record_final:
+                        out_final[row, :] = y_part
                     break
                 if n_cross >= max_crossings:
                     fate = FATE_UNRESOLVED
+                    if record_final:
+                        out_final[row, :] = y_part
                     break
         if end_fate != FATE_UNRESOLVED:
             fate = end_fate
+            if record_final:
+                out_final[row, :] = y_new
             if end_fate == FATE_ESCAPED:
                 mu_e = _hermite(y[2], y_new[2], h * f[2], h * k[5, 2], s_end)
                 phi_e = _hermite(y[4], y_new[4], h * f[4], h * k[5, 4], s_end) + pole_shift
@@ -270,12 +287,15 @@ def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
             h *= min(5.0, max(0.2, 0.9 * err ** -0.2))
         else:
             h *= 5.0
+    if record_final and fate == FATE_UNRESOLVED and steps >= max_steps:
+        out_final[row, :] = y
     return fate, n_cross, steps, theta_end, phi_end
 
 
 @njit(cache=True, parallel=True, error_model="numpy")
 def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
-               max_steps, max_crossings, n_record, stop_on_disk, r_in, r_out):
+               max_steps, max_crossings, n_record, stop_on_disk, r_in, r_out,
+               record_final=False):
     """Trace many rays in parallel (one ``prange`` iteration per ray).
 
     Parameters
@@ -301,6 +321,9 @@ def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
         End a ray at its first crossing with r_in <= r <= r_out (opaque disk).
     r_in, r_out : float
         Disk edges in M (used only with ``stop_on_disk``).
+    record_final : bool, optional
+        Also return each ray's state where it ended (for checks of the first
+        integrals; costs 48 bytes per ray).
 
     Returns
     -------
@@ -311,6 +334,12 @@ def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
     fate, n_crossings, steps : ndarray of int, shape (N,)
     theta_end, phi_end : ndarray, shape (N,)
         Direction (theta, phi) where the ray escaped (NaN otherwise).
+    final_state : ndarray, shape (N, 6), or (0, 6) without ``record_final``
+        State (u, du/dsigma, mu, dmu/dsigma, phi, delay) where each ray ended:
+        the refined crossing for a disk hit or the crossing cap, the first
+        accepted step at or past the capture or escape radius, the last
+        accepted state at the step cap; NaN for a ray whose initial state or
+        lam, eta were not finite (it is not traced: fate "unresolved", 0 steps).
     """
     n = initial_states.shape[0]
     cross_r = np.full((n, n_record), np.nan)
@@ -322,17 +351,18 @@ def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
     steps = np.empty(n, dtype=np.int32)
     theta_end = np.full(n, np.nan)
     phi_end = np.full(n, np.nan)
+    final_state = np.full((n if record_final else 0, N_STATE), np.nan)
     atol = tolerance * 1e-3
     for i in prange(n):
         h0 = 1e-3 if initial_states[i, 0] > 0.0 else 1e-2
         result = _trace_one(initial_states[i], spin, lam[i], eta[i], u_escape, u_capture,
                             tolerance, atol, h0, max_steps, max_crossings, n_record,
                             stop_on_disk, r_in, r_out, cross_r, cross_phi, cross_delay,
-                            cross_inward, i)
+                            cross_inward, i, record_final, final_state)
         fate[i] = result[0]
         n_crossings[i] = result[1]
         steps[i] = result[2]
         theta_end[i] = result[3]
         phi_end[i] = result[4]
     return (cross_r, cross_phi, cross_delay, cross_inward, fate, n_crossings, steps,
-            theta_end, phi_end)
+            theta_end, phi_end, final_state)

@@ -20,18 +20,21 @@ CHUNK_RAYS = 32768
 
 def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_steps=100000,
                  max_crossings=64, stop_on_disk=False, r_in=0.0, r_out=0.0,
-                 chunk_rays=CHUNK_RAYS, progress=None):
+                 chunk_rays=CHUNK_RAYS, progress=None, final_state=False):
     """Run the kernel on a :class:`~render.camera.RayBundle`; return the raw arrays as a dict.
 
     Rays are traced in chunks of ``chunk_rays`` (each chunk one parallel kernel
     call), which bounds the kernel's scratch memory, lets Ctrl-C interrupt a
     long render between chunks, and drives ``progress(done, total)`` if given.
+    With ``final_state=True`` the dict also holds ``final_state`` (N, 6): the
+    state (u, du/dsigma, mu, dmu/dsigma, phi, delay) where each ray ended (see
+    :func:`render.geodesics.trace_rays`), for checks of its first integrals.
     """
     r_plus, _ = horizon_radii(spin)
     u_capture = 1.0 / (r_plus * (1.0 + CAPTURE_MARGIN))
     total = bundle.lam.size
     names = ("r", "phi", "delay", "inward", "fate", "n_crossings", "steps",
-             "theta_end", "phi_end")
+             "theta_end", "phi_end", "final_state")
     parts = {name: [] for name in names}
     for start in range(0, max(total, 1), chunk_rays):
         stop = min(start + chunk_rays, total)
@@ -40,11 +43,13 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
             np.ascontiguousarray(bundle.lam[start:stop]),
             np.ascontiguousarray(bundle.eta[start:stop]), float(spin), float(bundle.u_escape),
             u_capture, float(tolerance), int(max_steps), int(max_crossings), int(n_record),
-            bool(stop_on_disk), float(r_in), float(r_out))
+            bool(stop_on_disk), float(r_in), float(r_out), bool(final_state))
         for name, array in zip(names, arrays):
             parts[name].append(array)
         if progress is not None:
             progress(stop, total)
+    if not final_state:
+        del parts["final_state"]
     return {name: np.concatenate(chunks) for name, chunks in parts.items()}
 
 
