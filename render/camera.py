@@ -131,6 +131,8 @@ def _polar_position(inclination_deg):
         return 0.0, 0.0, 1.0
     if inclination_deg > 180.0 - 1e-7:
         return np.pi, 0.0, -1.0
+    if inclination_deg == 90.0:  # cos(pi/2) = 6e-17 would tilt rays meant to lie in the plane
+        return 0.5 * np.pi, 1.0, 0.0
     theta = np.radians(inclination_deg)
     return theta, np.sin(theta), np.cos(theta)
 
@@ -248,7 +250,8 @@ def observer_frame(spin, r, theta, frame):
     return tetrad
 
 
-def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="zamo"):
+def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="zamo",
+                velocity=None):
     """Initial states of rays reaching a camera at finite distance.
 
     Parameters
@@ -263,6 +266,11 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
         Camera's polar angle and azimuth in degrees.
     frame : {"zamo", "static"}
         The camera's local frame (see the module docstring).
+    velocity : array_like, shape (3,), optional
+        The camera's 3-velocity (v_r, v_theta, v_phi) relative to ``frame``;
+        the pixels are then set up in the boosted frame
+        (:func:`render.motion.boost_frame`), so aberration and Doppler shift
+        are included.
 
     Returns
     -------
@@ -296,6 +304,10 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
         tetrad[3] = 0.0  # never used: n_phi = 0 on the axis
     else:
         tetrad = observer_frame(a, r, theta, frame)
+    if velocity is not None:
+        from .motion import boost_frame
+
+        tetrad = boost_frame(tetrad, velocity)
     sigma, delta, big_a = metric_functions(r, theta, a)
     sin2 = sin_o * sin_o
     # Photon 4-momentum with unit energy in the camera frame.

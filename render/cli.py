@@ -41,6 +41,16 @@ def _parser():
 
     commands.add_parser("keys", help="print the scene-key reference (Markdown)")
 
+    sequence = commands.add_parser(
+        "sequence", help="render (or resume) a scene's animation: frames, video, light curve")
+    sequence.add_argument("scene", help="YAML scene file with an animation section")
+    _add_common_options(sequence)
+    sequence.add_argument("--workers", type=int, default=1, metavar="N",
+                          help="local processes rendering frames (default: 1)")
+    sequence.add_argument("--scheduler", metavar="ADDRESS",
+                          help="Dask distributed scheduler, e.g. tcp://10.0.0.5:8786")
+    sequence.add_argument("--quiet", action="store_true", help="print nothing on success")
+
     measure = commands.add_parser(
         "measure", help="measure the shadow against the analytic prediction (exit 1 on a miss)")
     measure.add_argument("scene", help="YAML scene file")
@@ -96,7 +106,13 @@ def _still(args):
                                 f"{exc.strerror or exc}") from None
     if not os.access(folder, os.W_OK | os.X_OK):
         raise OutputFolderError(f"--output-dir {str(folder)!r} is not writable")
-    result = render_still(scene)
+    from .progress import RayProgress
+
+    bar = RayProgress(quiet=args.quiet)
+    try:
+        result = render_still(scene, progress=bar)
+    finally:
+        bar.close()
     paths = write_still(result, folder, overwrite=args.overwrite)
     paths.update(write_products(result, folder, overwrite=args.overwrite))
     if not args.quiet:
@@ -115,8 +131,42 @@ def _still(args):
     return 0
 
 
+def _sequence(args):
+    from .animation import render_sequence
+    from .progress import FrameProgress
+
+    if args.workers < 1:
+        raise OutputFolderError(f"--workers {args.workers} is not allowed; expected N >= 1")
+    scene = _load(args)
+    bar = FrameProgress(quiet=args.quiet)
+    try:
+        result = render_sequence(scene, args.output_dir, workers=args.workers,
+                                 scheduler=args.scheduler, overwrite=args.overwrite,
+                                 progress=bar)
+    finally:
+        bar.close()
+    flash = result.flash
+    if flash and not flash["passes"]:
+        print(f"nullray: warning: {flash['worst_flashes']} flashes in the second starting at "
+              f"{flash['worst_start_s']:.2f} s (frame {flash['worst_start_frame']}): more than "
+              "3 per second fails WCAG 2.2 SC 2.3.1 (photosensitive epilepsy); do not screen "
+              "it publicly as is", file=sys.stderr)
+    if not args.quiet:
+        print(f"{len(result.rendered)} frames rendered, {len(result.reused)} already finished, "
+              f"in {result.folder}/")
+        if flash:
+            print(f"flash check: worst second has {flash['worst_flashes']} flashes (starting "
+                  f"{flash['worst_start_s']:.2f} s); {'passes' if flash['passes'] else 'FAILS'} "
+                  "WCAG 2.2 SC 2.3.1")
+        for path in result.paths.values():
+            print(f"wrote {path}")
+    return 0
+
+
 def main(argv=None):
     """Entry point of the ``nullray`` command; returns the exit status."""
+    from .animation import SequenceFolderError
+    from .distributed import SchedulerError
     from .output import OutputExists
     from .scene import SceneError
 
@@ -129,8 +179,11 @@ def main(argv=None):
             return 0
         if args.command == "measure":
             return _measure(args)
+        if args.command == "sequence":
+            return _sequence(args)
         return _still(args)
-    except (SceneError, OutputExists, OutputFolderError) as exc:
+    except (SceneError, OutputExists, OutputFolderError, SequenceFolderError,
+            SchedulerError) as exc:
         # One line, whatever the key or file name contained.
         message = str(exc).replace("\r", "\\r").replace("\n", "\\n")
         print(f"nullray: error: {message}", file=sys.stderr)

@@ -32,6 +32,11 @@ __all__ = [
 MAX_SCENE_BYTES = 256 * 1024
 MAX_NESTING = 8
 MAX_PIXELS_SIDE = 65536
+CAMERA_PATHS = ("still", "orbit", "plunge", "keyframed")
+INTERPOLATIONS = ("linear", "smooth", "cubic")
+# Keyframes may drive these sections' plain numeric keys.
+KEYFRAME_SECTIONS = ("observer", "black_hole", "disk", "emission", "pattern")
+MAX_KEYFRAMES = 10000
 
 
 class SceneError(ValueError):
@@ -175,6 +180,45 @@ KEYS = {spec.path: spec for spec in [
     _k("output.exposure", "float", 4.0, "-", "0 < exposure <= 1e12",
        "Brightness multiplier of the fixed exposure rule (see README).",
        low=0.0, high=1e12, low_open=True),
+    _k("animation.frames", "int_or_none", None, "-", "null or 1 <= frames <= 100000",
+       "Frames of a sequence (`nullray sequence`); null: animation.duration x animation.fps.",
+       low=1, high=100_000),
+    _k("animation.duration", "float_or_none", None, "s", "null or 0 < duration <= 3600",
+       "Length of the film in seconds of screen time (used when animation.frames is null).",
+       low=0.0, high=3600.0, low_open=True),
+    _k("animation.fps", "float", 24.0, "1/s", "1 <= fps <= 240",
+       "Frames per second of screen time (video and flash check).", low=1.0, high=240.0),
+    _k("animation.time_step", "float", 10.0, "M", "0 < time_step <= 1e9",
+       "Observer's own clock per frame: proper time of a camera, retarded time at infinity "
+       "for a distant observer (docs/animation.md).", low=0.0, high=1e9, low_open=True),
+    _k("animation.camera_path", "choice", "still", "-", ", ".join(CAMERA_PATHS),
+       "still: at rest in observer.frame (repositioned per frame); orbit: circular orbit at "
+       "observer.distance; plunge: free fall from rest at infinity; keyframed: moves along the "
+       "keyframed distance, inclination and azimuth.", choices=CAMERA_PATHS),
+    _k("animation.angular_velocity", "float_or_none", None, "rad/M", "null (Keplerian) or "
+       "-1 <= angular_velocity <= 1", "Orbit: dphi/dt of the camera; null: Keplerian "
+       "1/(r^1.5 + a) (a geodesic in the equatorial plane).", low=-1.0, high=1.0),
+    _k("animation.interpolation", "choice", "smooth", "-", ", ".join(INTERPOLATIONS),
+       "Default interpolation between keyframes.", choices=INTERPOLATIONS),
+    _k("animation.keyframes", "keyframes", (), "-", "a list of {frame: n, dotted.key: number, "
+       "interpolation: ...}", "Values of numeric observer, black_hole, disk, emission or "
+       "pattern keys at given frames, in increasing frame order."),
+    _k("pattern.kind", "choice", "none", "-", "none, spot, spiral",
+       "Brightness pattern moving with the gas: a Gaussian spot on a Keplerian orbit, or "
+       "spiral arms turning at the local Keplerian angular velocity.",
+       choices=("none", "spot", "spiral")),
+    _k("pattern.radius", "float", 8.0, "M", "on the disk: inner_radius <= radius <= outer_radius",
+       "Orbital radius of the spot.", low=0.0, high=1e6, low_open=True),
+    _k("pattern.phase", "float", 0.0, "deg", "-360 <= phase <= 360",
+       "Azimuth of the spot (or of the arms) at emission time t = 0.", low=-360.0, high=360.0),
+    _k("pattern.size", "float", 1.0, "M", "0 < size <= 1000",
+       "Gaussian radius (standard deviation) of the spot.", low=0.0, high=1e3, low_open=True),
+    _k("pattern.contrast", "float", 4.0, "-", "0 <= contrast <= 1e6",
+       "Peak extra emission: I_em -> I_em (1 + contrast x pattern).", low=0.0, high=1e6),
+    _k("pattern.arms", "int", 2, "-", "1 <= arms <= 16", "Number of spiral arms.",
+       low=1, high=16),
+    _k("pattern.pitch", "float", 20.0, "deg", "1 <= pitch <= 89",
+       "Pitch angle of the logarithmic spiral arms.", low=1.0, high=89.0),
     _k("measure.directions", "int", 512, "-", "16 <= directions <= 65536",
        "Rays from the shadow's centre along which `nullray measure` bisects its edge.",
        low=16, high=65536),
@@ -254,7 +298,9 @@ def _coerce(spec, value):
         if not isinstance(value, str) or not value.strip() or len(value) > 4096 or "\0" in value:
             _fail(key, value, spec.allowed)
         return value
-    if spec.kind == "float_or_none":
+    if spec.kind == "keyframes":
+        return _coerce_keyframes(key, value)
+    if spec.kind in ("float_or_none", "int_or_none"):
         if value is None:
             return None
     if spec.kind == "radius_or_isco":
@@ -268,7 +314,7 @@ def _coerce(spec, value):
     # Numbers.  YAML booleans are ints in Python: refuse them explicitly.
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         _fail(key, value, f"a number ({spec.allowed})")
-    if spec.kind == "int":
+    if spec.kind in ("int", "int_or_none"):
         if isinstance(value, float):
             if not value.is_integer():
                 _fail(key, value, f"a whole number ({spec.allowed})")
@@ -282,6 +328,53 @@ def _coerce(spec, value):
     if too_low or too_high:
         _fail(key, value, spec.allowed)
     return value
+
+
+def _coerce_keyframes(key, value):
+    """A list of {frame: n, dotted.key: number, interpolation: ...}, frames increasing."""
+    if value is None:
+        return ()
+    if not isinstance(value, (list, tuple)):
+        _fail(key, value, "a list of {frame: n, dotted.key: number} entries")
+    if len(value) > MAX_KEYFRAMES:
+        raise SceneError(f"{key} has {len(value)} entries; at most {MAX_KEYFRAMES} are allowed")
+    entries = []
+    previous = None
+    for index, entry in enumerate(value):
+        where = f"{key}[{index}]"
+        if not isinstance(entry, dict) or "frame" not in entry:
+            _fail(where, entry, "a mapping with 'frame' and dotted numeric keys")
+        frame = entry["frame"]
+        if isinstance(frame, bool) or not isinstance(frame, int) or frame < 0:
+            _fail(f"{where}.frame", frame, "a whole number >= 0")
+        if previous is not None and frame <= previous:
+            raise SceneError(f"{where}.frame = {frame} is out of order; keyframes must have "
+                             f"increasing frames (previous entry: frame {previous})")
+        previous = frame
+        clean = {"frame": frame}
+        for name, number in entry.items():
+            if name == "frame":
+                continue
+            if name == "interpolation":
+                if number not in INTERPOLATIONS:
+                    _fail(f"{where}.interpolation", number, f"one of: {', '.join(INTERPOLATIONS)}")
+                clean[name] = number
+                continue
+            spec = KEYS.get(name) if isinstance(name, str) else None
+            if (spec is None or spec.kind != "float"
+                    or name.split(".")[0] not in KEYFRAME_SECTIONS):
+                hint = "" if spec is not None else _suggest(str(name))
+                raise SceneError(f"{where}: {_describe(name)} cannot be keyframed; allowed: "
+                                 f"numeric keys of {', '.join(KEYFRAME_SECTIONS)} "
+                                 f"(e.g. observer.inclination){hint}")
+            if isinstance(number, bool) or not isinstance(number, (int, float)) or not (
+                    _is_finite(number)):
+                _fail(f"{where}.{name}", number, "a finite number")
+            clean[name] = float(number)
+        if len(clean) == 1 + ("interpolation" in clean):
+            raise SceneError(f"{where} (frame {frame}) sets no key")
+        entries.append(clean)
+    return tuple(entries)
 
 
 def _is_finite(value):
@@ -360,6 +453,7 @@ def _check_consistency(values):
     from .observing import check_observing
 
     check_observing(values)
+    _check_animation(values, inner)
     pixels = values["image.width"] * values["image.height"]
     orders = values["disk.orders"]
     needed = estimated_bytes(pixels, orders) / 1e9
@@ -368,6 +462,38 @@ def _check_consistency(values):
             f"image.width x image.height = {values['image.width']} x {values['image.height']} "
             f"needs about {needed:.3g} GB with {orders} orders; allowed: at most "
             f"tracing.memory_budget = {values['tracing.memory_budget']:g} GB")
+
+
+def frame_count(values):
+    """Frames of the sequence: animation.frames, else round(duration x fps); None if neither."""
+    if values["animation.frames"] is not None:
+        return values["animation.frames"]
+    if values["animation.duration"] is not None:
+        return max(1, round(values["animation.duration"] * values["animation.fps"]))
+    return None
+
+
+def _check_animation(values, inner):
+    """Cross-key checks of the animation and pattern sections (docs/animation.md)."""
+    if values["animation.frames"] is not None and values["animation.duration"] is not None:
+        raise SceneError("animation.frames and animation.duration are both given; give one "
+                         "(duration x fps sets the frame count)")
+    frames = frame_count(values)
+    keyframes = values["animation.keyframes"]
+    if keyframes and frames is not None and keyframes[-1]["frame"] >= frames:
+        raise SceneError(f"animation.keyframes sets frame {keyframes[-1]['frame']}, but the "
+                         f"sequence has {frames} frames (0..{frames - 1})")
+    if values["animation.camera_path"] != "still" and values["observer.kind"] != "camera":
+        raise SceneError(f"animation.camera_path = {values['animation.camera_path']!r} needs "
+                         "observer.kind = 'camera' (a distant observer cannot move)")
+    if values["pattern.kind"] != "none":
+        if values["observing.mode"] != "bolometric":
+            raise SceneError(f"pattern.kind = {values['pattern.kind']!r} needs observing.mode = "
+                             f"'bolometric' (got {values['observing.mode']!r})")
+        radius = values["pattern.radius"]
+        if values["pattern.kind"] == "spot" and not inner <= radius <= values["disk.outer_radius"]:
+            _fail("pattern.radius", radius, f"a radius on the disk, {inner:.6g} M to "
+                  f"{values['disk.outer_radius']:.6g} M")
 
 
 def estimated_bytes(pixels, orders):
@@ -547,6 +673,8 @@ def keys_reference():
             default = str(default).lower()
         elif default is None:
             default = "null"  # as it is written in YAML
+        elif default == ():
+            default = "[]"
         elif isinstance(default, float) and len(repr(default)) > 10:
             default = f"{default:.6g}"
         lines.append(f"| `{spec.path}` | {spec.unit} | `{default}` | {spec.allowed} | {spec.doc} |")

@@ -79,8 +79,11 @@ def observer_rays(scene):
     return alpha, beta, bundle
 
 
-def render_still(scene):
+def render_still(scene, progress=None):
     """Render a validated :class:`~render.scene.Scene` and return a :class:`StillResult`.
+
+    ``progress(done, total)`` is called as rays finish (e.g. a
+    :class:`render.progress.RayProgress` bar).
 
     Examples
     --------
@@ -101,7 +104,7 @@ def render_still(scene):
     raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
                        max_steps=scene["tracing.max_steps"],
                        max_crossings=scene["tracing.max_crossings"],
-                       stop_on_disk=opaque, r_in=r_in, r_out=r_out)
+                       stop_on_disk=opaque, r_in=r_in, r_out=r_out, progress=progress)
     traced = time.perf_counter()
     g = redshift_factor(raw["r"], bundle.lam[:, None], spin, bundle.energy_ratio[:, None])
     hits = on_disk(raw["r"], r_in, r_out)

@@ -1,0 +1,74 @@
+"""Sequence benchmark: frames per minute of an orbit, serial against the local process pool.
+
+Prints ONE line of JSON on stdout (progress goes to stderr)::
+
+    /tmp/venv/bin/python benchmarks/bench_sequence.py > bench_sequence.json
+    /tmp/venv/bin/python benchmarks/bench_sequence.py --frames 24   # a quicker look
+
+The scene is scenes/orbit-kestrel.yaml: a camera on a Keplerian orbit at 40 M
+(spin 0.7, 80 deg), 320 x 180 pixels, opaque disk, a co-moving spot, 120 frames.
+Every frame has its own camera position, so nothing is reused between frames.
+Each mode renders the whole sequence into a fresh temporary folder with
+:func:`render.animation.render_sequence` (frames, manifest; the video and other
+products are left out, they are the same for both modes):
+
+serial
+    One process; numba's parallel kernel uses every core for each frame.
+pool
+    ``workers`` processes (default: the number of cores), each kernel call
+    limited to cores // workers numba threads; frames are the unit of work.
+
+Before timing, one frame is rendered in this process so that the serial mode
+does not pay numba's cache load; the pool's workers do pay it (about 1.5 s per
+worker), as they do in real use.
+"""
+
+import argparse
+import json
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+REPO = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(REPO))
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--frames", type=int, default=120)
+    parser.add_argument("--workers", type=int, default=os.cpu_count() or 2)
+    args = parser.parse_args()
+
+    import numba
+
+    from render import load_scene
+    from render.animation import plan_sequence, render_frame, render_sequence
+
+    scene = load_scene(REPO / "scenes" / "orbit-kestrel.yaml",
+                       [f"animation.frames={args.frames}"])
+    render_frame(plan_sequence(scene).jobs[0])  # warm-up (numba cache load)
+    results = {}
+    for mode, workers in (("serial", 1), ("pool", args.workers)):
+        with tempfile.TemporaryDirectory() as folder:
+            print(f"{mode}: {args.frames} frames ...", file=sys.stderr, flush=True)
+            started = time.perf_counter()
+            render_sequence(scene, folder, workers=workers, products=False)
+            seconds = time.perf_counter() - started
+        results[mode] = {"seconds": round(seconds, 3), "workers": workers,
+                         "frames_per_minute": round(60.0 * args.frames / seconds, 2)}
+        print(f"{mode}: {results[mode]}", file=sys.stderr, flush=True)
+    faster = max(results, key=lambda m: results[m]["frames_per_minute"])
+    print(json.dumps({
+        "benchmark": "sequence", "scene": "scenes/orbit-kestrel.yaml",
+        "frames": args.frames, "size": [scene["image.width"], scene["image.height"]],
+        "cores": os.cpu_count(), "numba_threads": numba.config.NUMBA_NUM_THREADS,
+        "serial": results["serial"], "pool": results["pool"], "faster": faster,
+        "pool_speedup": round(results["pool"]["frames_per_minute"]
+                              / results["serial"]["frames_per_minute"], 3),
+    }))
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,163 @@
+"""Spreading frames over processes: a local pool or a Dask distributed cluster.
+
+The unit of work is one frame (:class:`render.animation.FrameJob`).  Workers
+return the frame's pixels; the client writes them, in frame order, so the
+manifest and the files look the same whichever backend rendered them.
+
+Numba's parallel kernel would start one thread per core in every worker; with
+several workers per machine that oversubscribes the cores.  Each task therefore
+sets ``numba.set_num_threads(cores // workers_on_that_machine)`` before
+tracing (numba's thread count is per calling thread, so it is set inside the
+task, not once per process).
+
+Cluster set-up (see README)::
+
+    dask scheduler --host 0.0.0.0 --port 8786            # on one machine
+    dask worker tcp://SCHEDULER:8786 --nworkers 1 --nthreads 1   # on each machine
+    nullray sequence scenes/orbit.yaml --scheduler tcp://SCHEDULER:8786
+
+Every worker needs the same nullray installed (``pip install -e .``).
+"""
+
+import os
+from collections import Counter
+
+__all__ = ["SchedulerError", "connect", "frame_results", "local_threads"]
+
+CONNECT_TIMEOUT_S = 10
+
+
+class SchedulerError(Exception):
+    """The Dask scheduler cannot be reached or used; the message is one line."""
+
+
+def local_threads(workers, cores=None):
+    """Numba threads per worker so that ``workers`` processes share the cores.
+
+    Examples
+    --------
+    >>> local_threads(2, cores=8), local_threads(16, cores=8)
+    (4, 1)
+    """
+    cores = cores or os.cpu_count() or 1
+    return max(1, cores // max(1, int(workers)))
+
+
+def connect(address, timeout=CONNECT_TIMEOUT_S):
+    """A ``dask.distributed.Client`` for ``address``; :class:`SchedulerError` if unreachable."""
+    try:
+        from dask.distributed import Client
+    except ImportError as exc:  # pragma: no cover - dask is a dependency
+        raise SchedulerError(f"--scheduler needs dask.distributed: {exc}") from None
+    _check_reachable(address, timeout)
+    try:
+        client = Client(address, timeout=timeout, set_as_default=False)
+    except Exception as exc:  # OSError, TimeoutError, ValueError for a malformed address
+        detail = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise SchedulerError(f"--scheduler {address!r} cannot be reached: {detail}") from None
+    return client
+
+
+def _check_reachable(address, timeout):
+    """Fail fast on a refused or unroutable tcp:// address (Dask itself retries until timeout)."""
+    import socket
+    from urllib.parse import urlsplit
+
+    if "://" not in address:
+        address = f"tcp://{address}"
+    parts = urlsplit(address)
+    if parts.scheme not in ("tcp", "tls"):
+        return  # other transports (inproc, ucx): leave the check to Dask
+    try:
+        host, port = parts.hostname, parts.port
+    except ValueError:
+        raise SchedulerError(f"--scheduler {address!r} is not an address host:port") from None
+    if not host or port is None:
+        raise SchedulerError(f"--scheduler {address!r} is not an address host:port (e.g. "
+                             "tcp://10.0.0.5:8786)")
+    try:
+        socket.create_connection((host, port), timeout=timeout).close()
+    except OSError as exc:
+        raise SchedulerError(f"--scheduler {address!r} cannot be reached: "
+                             f"{exc.strerror or exc}") from None
+
+
+def _dask_threads(client):
+    """{worker address: numba threads}: each machine's cores shared by its worker threads."""
+    cores = client.run(os.cpu_count)
+    workers = client.scheduler_info(n_workers=-1)["workers"] if _accepts_n_workers(client) \
+        else client.scheduler_info()["workers"]
+    per_host = Counter()
+    for address, info in workers.items():
+        per_host[info.get("host", address)] += int(info.get("nthreads", 1))
+    return {address: max(1, (cores.get(address) or 1) // per_host[info.get("host", address)])
+            for address, info in workers.items()}
+
+
+def _accepts_n_workers(client):
+    import inspect
+
+    return "n_workers" in inspect.signature(client.scheduler_info).parameters
+
+
+def _dask_task(job, threads):
+    from dask.distributed import get_worker
+
+    from .animation import render_frame
+
+    return render_frame(job, numba_threads=threads.get(get_worker().address, 1))
+
+
+def _pool_init():
+    # Workers never print tracebacks of Ctrl-C: the client reports the interruption.
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+def frame_results(jobs, workers=1, client=None):
+    """Yield :class:`~render.animation.FrameResult` for ``jobs``, in their order.
+
+    Parameters
+    ----------
+    jobs : list of FrameJob
+    workers : int
+        Local processes; 1 renders in this process.
+    client : dask.distributed.Client, optional
+        Send the frames to this cluster instead.
+    """
+    from .animation import render_frame
+
+    jobs = list(jobs)
+    if not jobs:
+        return
+    if client is not None:
+        threads = _dask_threads(client)
+        futures = [client.submit(_dask_task, job, threads, pure=False,
+                                 key=f"nullray-frame-{job.index}-{id(jobs)}") for job in jobs]
+        try:
+            for future in futures:
+                yield future.result()
+        finally:
+            for future in futures:
+                future.cancel()
+        return
+    if workers <= 1:
+        for job in jobs:
+            yield render_frame(job)
+        return
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    # spawn: numba's threading layers are not safe across fork.
+    context = multiprocessing.get_context("spawn")
+    threads = local_threads(workers)
+    with ProcessPoolExecutor(max_workers=int(workers), mp_context=context,
+                             initializer=_pool_init) as pool:
+        futures = [pool.submit(render_frame, job, threads) for job in jobs]
+        try:
+            for future in futures:
+                yield future.result()
+        finally:
+            for future in futures:
+                future.cancel()

@@ -1,0 +1,85 @@
+"""Progress reports on stderr: a tqdm bar with ETA on a terminal, plain log lines otherwise.
+
+On a terminal a bar shows rays (stills) or frames (sequences) with the
+estimated time left.  When stderr is not a terminal (a log file, a batch job),
+a sequence writes one line per finished frame and a still writes nothing, so
+logs stay readable.  ``quiet`` silences both.
+"""
+
+import sys
+import time
+
+__all__ = ["RayProgress", "FrameProgress"]
+
+
+def _is_terminal(stream):
+    try:
+        return stream.isatty()
+    except (AttributeError, ValueError):
+        return False
+
+
+class RayProgress:
+    """``progress(done, total)`` callback of :func:`render.points.trace_bundle` for a still."""
+
+    def __init__(self, quiet=False, stream=None, description="tracing"):
+        self.stream = stream or sys.stderr
+        self.enabled = not quiet and _is_terminal(self.stream)
+        self.description = description
+        self._bar = None
+
+    def __call__(self, done, total):
+        if not self.enabled:
+            return
+        if self._bar is None:
+            from tqdm import tqdm
+
+            self._bar = tqdm(total=total, desc=self.description, unit="ray", unit_scale=True,
+                             file=self.stream, leave=False, dynamic_ncols=True)
+        self._bar.update(done - self._bar.n)
+
+    def close(self):
+        if self._bar is not None:
+            self._bar.close()
+            self._bar = None
+
+
+class FrameProgress:
+    """``progress(done, total, result)`` callback of :func:`render.animation.render_sequence`."""
+
+    def __init__(self, quiet=False, stream=None):
+        self.stream = stream or sys.stderr
+        self.quiet = quiet
+        self.terminal = _is_terminal(self.stream)
+        self._bar = None
+        self._started = None
+        self._first_done = None
+
+    def __call__(self, done, total, result):
+        if self.quiet:
+            return
+        if result is None:  # the start: frames already finished by an earlier run
+            self._started = time.monotonic()
+            self._first_done = done
+            if self.terminal:
+                from tqdm import tqdm
+
+                self._bar = tqdm(total=total, initial=done, desc="frames", unit="frame",
+                                 file=self.stream, dynamic_ncols=True)
+            elif done:
+                print(f"resuming: {done}/{total} frames already finished", file=self.stream,
+                      flush=True)
+            return
+        if self._bar is not None:
+            self._bar.update(done - self._bar.n)
+            return
+        elapsed = time.monotonic() - self._started
+        new = done - self._first_done
+        eta = elapsed / new * (total - done) if new else float("nan")
+        print(f"frame {result.index} done ({done}/{total}) in {result.seconds:.2f} s; "
+              f"eta {eta:.0f} s", file=self.stream, flush=True)
+
+    def close(self):
+        if self._bar is not None:
+            self._bar.close()
+            self._bar = None

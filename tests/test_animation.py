@@ -1,0 +1,298 @@
+"""Keyframes, frame sequences, resume after interruption, and time on the disk."""
+
+import dataclasses
+import json
+import os
+import signal
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+import yaml
+from PIL import Image
+
+from conftest import run_cli
+from render import default_scene, render_still
+from render.animation import interpolate, plan_sequence, render_frame, render_sequence
+from render.pattern import emission_time, tortoise_radius
+from render.scene import SceneError
+
+REPO = Path(__file__).resolve().parents[1]
+
+SMALL = {"image.width": 32, "image.height": 18, "observer.kind": "distant",
+         "observer.field_of_view": 30.0, "output.npz": False}
+
+
+def small(**values):
+    return default_scene(**{**SMALL, **values})
+
+
+# --- keyframes ------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("kind", ["linear", "smooth", "cubic"])
+def test_interpolation_passes_through_the_keyframes(kind):
+    points = [(0, 1.0, kind), (3, 4.0, kind), (9, -2.0, kind)]
+    for frame, value, _ in points:
+        assert interpolate(points, frame) == pytest.approx(value, abs=1e-12)
+
+
+def test_cubic_reproduces_straight_lines_and_smooth_rests_at_keyframes():
+    # Cubic Hermite with Catmull–Rom tangents is exact for linear data; smoothstep has zero
+    # slope at both ends (common practice: Catmull & Rom 1974; smoothstep 3s^2 - 2s^3).
+    line = [(0, 0.0, "cubic"), (2, 4.0, "cubic"), (7, 14.0, "cubic")]
+    for f in np.linspace(0, 7, 29):
+        assert interpolate(line, f) == pytest.approx(2.0 * f, abs=1e-12)
+    smooth = [(0, 0.0, "smooth"), (10, 1.0, None)]
+    h = 1e-6
+    assert (interpolate(smooth, h) - interpolate(smooth, 0)) / h == pytest.approx(0.0, abs=1e-5)
+    assert interpolate(smooth, 2.5) == pytest.approx(0.15625, abs=1e-12)  # 3/16 - 2/64
+
+
+@pytest.mark.parametrize("values, message", [
+    ({"animation.frames": 0}, "animation.frames = 0"),
+    ({"animation.frames": -3}, "animation.frames = -3"),
+    ({"animation.frames": 4, "animation.keyframes": [
+        {"frame": 2, "observer.inclination": 10}, {"frame": 1, "observer.inclination": 20}]},
+     "out of order"),
+    ({"animation.frames": 4, "animation.keyframes": [
+        {"frame": 1, "observer.inclination": 10}, {"frame": 1, "observer.inclination": 20}]},
+     "out of order"),
+    ({"animation.frames": 4, "animation.keyframes": [{"frame": 9, "observer.inclination": 10}]},
+     "has 4 frames"),
+    ({"animation.frames": 4, "animation.duration": 2.0}, "both given"),
+    ({"animation.keyframes": [{"frame": 0, "image.width": 10}]}, "cannot be keyframed"),
+    ({"animation.keyframes": [{"frame": 0, "observer.inclination": "x"}]}, "a finite number"),
+    ({"animation.keyframes": [{"observer.inclination": 3}]}, "'frame'"),
+])
+def test_bad_animation_input_is_one_line(values, message):
+    with pytest.raises(SceneError, match=message) as info:
+        small(**values)
+    assert "\n" not in str(info.value)
+
+
+def test_keyframed_value_out_of_range_names_the_frame():
+    scene = small(**{"animation.frames": 5, "animation.interpolation": "cubic",
+                     "animation.keyframes": [{"frame": 0, "black_hole.spin": 0.5},
+                                             {"frame": 2, "black_hole.spin": 0.99},
+                                             {"frame": 4, "black_hole.spin": 0.2}]})
+    # Cubic overshoots above 0.99 between frames 2 and 4?  No: it is evaluated at frames
+    # only; make one frame itself invalid instead.
+    plan_sequence(scene)
+    bad = small(**{"animation.frames": 3, "animation.keyframes": [
+        {"frame": 0, "black_hole.spin": 0.5}, {"frame": 2, "black_hole.spin": 1.5}]})
+    with pytest.raises(SceneError, match=r"^frame 1: black_hole.spin"):
+        plan_sequence(bad)
+
+
+def test_duration_and_fps_give_the_frame_count():
+    plan = plan_sequence(small(**{"animation.duration": 0.5, "animation.fps": 12.0}))
+    assert len(plan.jobs) == 6
+    with pytest.raises(SceneError, match="needs animation.frames"):
+        plan_sequence(small())
+
+
+# --- sequences -------------------------------------------------------------------------------
+
+def test_frames_are_numbered_in_order_with_one_exposure(tmp_path):
+    # Each frame equals the still of its keyframed scene with the exposure of frame 0
+    # (the same fixed rule as render_still; the law does not change along this sweep).
+    scene = small(name="sweep", **{"animation.frames": 4, "animation.interpolation": "linear",
+                                   "animation.keyframes": [{"frame": 0, "observer.inclination": 20},
+                                                           {"frame": 3, "observer.inclination": 80}]})
+    result = render_sequence(scene, tmp_path, products=False)
+    folder = tmp_path / "sweep"
+    assert result.rendered == [0, 1, 2, 3]
+    assert sorted(p.name for p in folder.glob("frame_*.png")) == [
+        f"frame_{k:05d}.png" for k in range(4)]
+    for k, inclination in enumerate([20.0, 40.0, 60.0, 80.0]):
+        still = render_still(small(**{"observer.inclination": inclination}))
+        frame = np.asarray(Image.open(folder / f"frame_{k:05d}.png"))
+        assert np.array_equal(frame, still.pixels), k
+    manifest = json.loads((folder / "manifest.json").read_text())
+    assert sorted(manifest["frames"]) == [f"{k:05d}" for k in range(4)]
+
+
+def _write_scene(path, **values):
+    document = {}
+    for key, value in {**SMALL, **values}.items():
+        section, _, leaf = key.partition(".")
+        if leaf:
+            document.setdefault(section, {})[leaf] = value
+        else:
+            document[section] = value
+    path.write_text(yaml.safe_dump(document), encoding="utf-8")
+    return path
+
+
+def _logged_frames(text):
+    return [int(line.split()[1]) for line in text.splitlines() if line.startswith("frame ")]
+
+
+def test_resume_after_kill_renders_only_missing_frames(tmp_path):
+    # Kill -9 mid-sequence, then rerun: every frame present and intact, none rendered twice.
+    frames = 10
+    scene = _write_scene(tmp_path / "resume.yaml", **{
+        "image.width": 48, "image.height": 27, "animation.frames": frames,
+        "animation.keyframes": [{"frame": 0, "observer.inclination": 10},
+                                {"frame": frames - 1, "observer.inclination": 85}]})
+    out = tmp_path / "out"
+    command = [sys.executable, "-m", "render", "sequence", str(scene), "--output-dir", str(out)]
+    env = dict(os.environ, NUMBA_NUM_THREADS="1")
+    first = subprocess.Popen(command, stderr=subprocess.PIPE, stdout=subprocess.DEVNULL,
+                             text=True, env=env)
+    seen = []
+    for line in first.stderr:
+        seen += _logged_frames(line)
+        if len(seen) >= 2:
+            first.send_signal(signal.SIGKILL)
+            break
+    first.wait(timeout=120)
+    first.stderr.close()
+    manifest = json.loads((out / "resume" / "manifest.json").read_text())
+    finished = {int(k) for k in manifest["frames"]}
+    assert set(seen) <= finished and len(finished) < frames, "kill came too late to test"
+    second = subprocess.run(command, capture_output=True, text=True, env=env, timeout=300)
+    assert second.returncode == 0, second.stderr
+    again = _logged_frames(second.stderr)
+    assert sorted(again) == sorted(set(range(frames)) - finished)  # none rendered twice
+    manifest = json.loads((out / "resume" / "manifest.json").read_text())
+    assert sorted(int(k) for k in manifest["frames"]) == list(range(frames))
+    import hashlib
+
+    for k in range(frames):
+        path = out / "resume" / f"frame_{k:05d}.png"
+        assert hashlib.sha256(path.read_bytes()).hexdigest() == manifest["frames"][f"{k:05d}"]["sha256"]
+        assert np.asarray(Image.open(path)).shape == (27, 48)
+    assert not list((out / "resume").glob(".*.part"))
+
+
+def test_a_corrupt_frame_is_rendered_again_and_a_changed_scene_is_refused(tmp_path, capsys):
+    scene = _write_scene(tmp_path / "edit.yaml", **{"animation.frames": 3})
+    out = tmp_path / "out"
+    status, text, err = run_cli(["sequence", scene, "--output-dir", out, "--quiet"], capsys)
+    assert status == 0 and text == "" and err == "", err
+    frame = out / "edit" / "frame_00001.png"
+    frame.write_bytes(frame.read_bytes()[:40])  # truncated, as by a crash of another tool
+    status, out_text, _ = run_cli(["sequence", scene, "--output-dir", out], capsys)
+    assert status == 0 and "1 frames rendered, 2 already finished" in out_text
+    assert np.asarray(Image.open(frame)).shape == (18, 32)
+    before = {p.name: p.read_bytes() for p in (out / "edit").glob("frame_*.png")}
+    status, _, err = run_cli(["sequence", scene, "--output-dir", out,
+                              "--set", "black_hole.spin=0.5"], capsys)
+    assert status == 2 and "different scene" in err and len(err.strip().splitlines()) == 1
+    assert {p.name: p.read_bytes() for p in (out / "edit").glob("frame_*.png")} == before
+    status, out_text, _ = run_cli(["sequence", scene, "--output-dir", out, "--overwrite",
+                                   "--set", "black_hole.spin=0.5"], capsys)
+    assert status == 0 and "3 frames rendered, 0 already finished" in out_text
+
+
+@pytest.mark.parametrize("extra, message", [
+    (["--set", "animation.frames=0"], "animation.frames = 0"),
+    (["--set", "animation.frames=-2"], "animation.frames = -2"),
+    (["--scheduler", "tcp://127.0.0.1:9"], "cannot be reached"),
+    (["--set", "observer.kind=camera", "--set", "animation.camera_path=plunge",
+      "--set", "observer.distance=12", "--set", "animation.time_step=20"], "horizon"),
+])
+def test_bad_sequence_input_exits_2_with_nothing_written(tmp_path, capsys, no_tracing, extra,
+                                                         message):
+    scene = _write_scene(tmp_path / "bad.yaml", **{"animation.frames": 3})
+    out = tmp_path / "out"
+    status, _, err = run_cli(["sequence", scene, "--output-dir", out] + extra, capsys)
+    assert status == 2 and message in err and len(err.strip().splitlines()) == 1
+    assert not out.exists()
+
+
+# --- time on the disk ------------------------------------------------------------------------
+
+def test_light_curve_period_of_an_orbiting_spot():
+    # A spot on the circular orbit at r = 8 M (spin 0.5) comes back after the coordinate-time
+    # period 2 pi (r^1.5 + a) (Bardeen, Press & Teukolsky 1972, eq. 2.16); the spacetime is
+    # stationary, so the flux at the distant observer repeats with that period exactly.
+    # The period is measured as the shift P that best maps the light curve onto itself
+    # (scipy minimisation); 1e-4 relative tolerance covers the minimiser's resolution, well
+    # below the 2 % a Schwarzschild or proper-time angular velocity would give.
+    from scipy.optimize import minimize_scalar
+
+    spin, radius = 0.5, 8.0
+    expected = 2 * np.pi * (radius ** 1.5 + spin)
+    scene = default_scene(**{
+        "image.width": 48, "image.height": 48, "observer.kind": "distant",
+        "black_hole.spin": spin, "observer.inclination": 70.0, "observer.field_of_view": 24.0,
+        "disk.outer_radius": 12.0, "pattern.kind": "spot", "pattern.radius": radius,
+        "pattern.size": 1.5, "animation.frames": 1})
+    job = plan_sequence(scene).jobs[0]
+    samples = np.linspace(0.0, 1.3 * expected, 60)
+
+    def flux(t):
+        return render_frame(dataclasses.replace(job, clock=t, coordinate_time=t)).flux
+
+    base = np.array([flux(t) for t in samples])
+    assert base.max() > 1.05 * base.min()  # the spot is seen
+
+    def mismatch(period):
+        return float(np.mean((np.array([flux(t + period) for t in samples]) - base) ** 2))
+
+    best = minimize_scalar(mismatch, bounds=(0.9 * expected, 1.1 * expected), method="bounded",
+                           options={"xatol": 1e-3})
+    assert best.x == pytest.approx(expected, rel=1e-4)
+
+
+def _schwarzschild_ray_to_the_equator(b, r_o):
+    """Radius and coordinate time where a ray from the axis at r_o meets the equator (a = 0).
+
+    The orbit is planar and meets the equatorial plane after sweeping pi/2 in its plane.
+    Binet's equation d^2u/dphi^2 + u = 3 u^2 with (du/dphi)^2 = 1/b^2 - u^2 (1 - 2u), and
+    dt/dphi = 1 / (b u^2 (1 - 2u)) (Misner, Thorne & Wheeler 1973, sec. 25.6, from memory),
+    integrated with scipy's solve_ivp (no trouble at the periapsis, unlike dt/dr).
+    """
+    from scipy.integrate import solve_ivp
+
+    u0 = 1.0 / r_o
+    slope = np.sqrt(1.0 / b ** 2 - u0 ** 2 * (1 - 2 * u0))  # moving inward: u grows
+
+    def rhs(phi, y):
+        u = y[0]
+        return [y[1], 3 * u * u - u, 1.0 / (b * u * u * (1 - 2 * u))]
+
+    sol = solve_ivp(rhs, (0.0, np.pi / 2), [u0, slope, 0.0], rtol=1e-12, atol=1e-14)
+    return 1.0 / sol.y[0, -1], sol.y[2, -1]
+
+
+def test_emission_time_of_a_camera_matches_a_direct_integration():
+    # A static camera on the axis at r_o = 60 M of a Schwarzschild hole: t_obs - t_em from
+    # render.pattern.emission_time (the kernel's regularised delay plus tortoise terms) equals
+    # the coordinate time along the ray integrated independently with scipy.  Tolerance
+    # 1e-7 relative: the kernel runs at tolerance 1e-11.
+    from render.camera import camera_rays, image_plane_grid
+    from render.points import trace_bundle
+
+    r_o = 60.0
+    x, y = image_plane_grid(10, 1, 40.0)  # pixel centres at 6, 10 and 14 M off the axis
+    bundle = camera_rays(x[:, 6:9], y[:, 6:9], 0.0, r_o, 0.0, 0.0, "static")
+    raw = trace_bundle(bundle, 0.0, n_record=1, tolerance=1e-11)
+    b = np.sqrt(bundle.eta + bundle.lam ** 2)
+    t_em = emission_time(1000.0, raw["delay"][:, 0], raw["r"][:, 0], 0.0, observer_radius=r_o)
+    for i in range(b.size):
+        r_em, travel = _schwarzschild_ray_to_the_equator(b[i], r_o)
+        assert raw["r"][i, 0] == pytest.approx(r_em, rel=1e-7)
+        assert 1000.0 - t_em[i] == pytest.approx(travel, rel=1e-7)
+
+
+def test_tortoise_coordinate_derivative():
+    # dr*/dr = (r^2 + a^2)/Delta (Chandrasekhar 1983, sec. 63), checked by central differences.
+    for a in (0.0, 0.6, -0.95):
+        for r in (2.5, 5.0, 40.0):
+            h = 1e-6
+            slope = (tortoise_radius(r + h, a) - tortoise_radius(r - h, a)) / (2 * h)
+            assert slope == pytest.approx((r * r + a * a) / (r * r - 2 * r + a * a), rel=1e-7)
+
+
+@pytest.mark.parametrize("name", ["orbit-kestrel", "sweep-inclination-marrow",
+                                  "sweep-spin-ondine"])
+def test_example_sequence_scenes_plan_without_error(name, no_tracing):
+    from render import load_scene
+
+    plan = plan_sequence(load_scene(REPO / "scenes" / f"{name}.yaml"))
+    assert len(plan.jobs) in (72, 120)

@@ -1,0 +1,66 @@
+"""Frames rendered by a local process pool or a Dask cluster equal the serial frames."""
+
+import json
+
+import numpy as np
+import pytest
+from PIL import Image
+
+from render import default_scene
+from render.animation import render_sequence
+from render.distributed import SchedulerError, connect, local_threads
+
+
+def _scene():
+    return default_scene(name="spread", **{
+        "image.width": 32, "image.height": 18, "observer.kind": "distant",
+        "observer.field_of_view": 30.0, "output.npz": False, "animation.frames": 4,
+        "pattern.kind": "spot", "pattern.size": 2.0, "animation.time_step": 20.0,
+        "animation.keyframes": [{"frame": 0, "observer.inclination": 30},
+                                {"frame": 3, "observer.inclination": 70}]})
+
+
+def _frames(folder):
+    return [np.asarray(Image.open(folder / f"frame_{k:05d}.png")) for k in range(4)]
+
+
+@pytest.fixture(scope="module")
+def serial(tmp_path_factory):
+    out = tmp_path_factory.mktemp("serial")
+    render_sequence(_scene(), out, products=False)
+    return out / "spread"
+
+
+def _same_as_serial(folder, serial):
+    for mine, reference in zip(_frames(folder), _frames(serial)):
+        assert np.array_equal(mine, reference)
+    ours = json.loads((folder / "manifest.json").read_text())["frames"]
+    theirs = json.loads((serial / "manifest.json").read_text())["frames"]
+    assert {k: v["sha256"] for k, v in ours.items()} == {k: v["sha256"] for k, v in theirs.items()}
+
+
+def test_local_pool_gives_the_serial_frames(tmp_path, serial):
+    result = render_sequence(_scene(), tmp_path, workers=2, products=False)
+    assert result.rendered == [0, 1, 2, 3]  # written in frame order by the client
+    _same_as_serial(tmp_path / "spread", serial)
+
+
+def test_dask_local_cluster_gives_the_serial_frames(tmp_path, serial):
+    distributed = pytest.importorskip("dask.distributed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  host="127.0.0.1", dashboard_address=None) as cluster:
+        result = render_sequence(_scene(), tmp_path, scheduler=cluster.scheduler_address,
+                                 products=False)
+    assert result.rendered == [0, 1, 2, 3]
+    _same_as_serial(tmp_path / "spread", serial)
+
+
+def test_unreachable_scheduler_is_one_line():
+    with pytest.raises(SchedulerError) as info:
+        connect("tcp://127.0.0.1:9", timeout=1)
+    assert "\n" not in str(info.value) and "cannot be reached" in str(info.value)
+
+
+def test_numba_threads_share_the_cores():
+    assert local_threads(2, cores=2) == 1
+    assert local_threads(3, cores=8) == 2

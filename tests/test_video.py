@@ -1,0 +1,109 @@
+"""Sequence products: video decodes back, GIF, contact sheet, light curve files, flash check."""
+
+import csv
+
+import imageio.v2 as imageio
+import numpy as np
+import pytest
+from PIL import Image
+
+from render import default_scene
+from render.animation import render_sequence
+from render.video import FLASH_AREA_FRACTION, contact_sheet, flash_check, relative_luminance
+
+
+@pytest.fixture(scope="module")
+def orbit_sequence(tmp_path_factory):
+    # A camera on a Keplerian orbit at 30 M: 6 frames of 32x18, with a spot so that frames
+    # differ (an axisymmetric disk alone looks the same from every point of the orbit).
+    scene = default_scene(name="orbit", **{
+        "image.width": 32, "image.height": 18, "animation.frames": 6, "output.npz": False,
+        "animation.camera_path": "orbit", "observer.distance": 30.0,
+        "observer.inclination": 75.0, "observer.field_of_view": 30.0,
+        "animation.time_step": 15.0, "animation.fps": 12.0, "pattern.kind": "spot",
+        "pattern.size": 2.0, "pattern.contrast": 20.0})
+    return render_sequence(scene, tmp_path_factory.mktemp("video"))
+
+
+def test_video_decodes_back_with_every_frame(orbit_sequence):
+    # imageio's own ffmpeg reader (independent of the writer's options) sees 6 frames of 32x18.
+    reader = imageio.get_reader(orbit_sequence.paths["mp4"], format="FFMPEG")
+    frames = [frame for frame in reader]
+    meta = reader.get_meta_data()
+    reader.close()
+    assert len(frames) == 6
+    assert frames[0].shape == (18, 32, 3)
+    assert meta["fps"] == pytest.approx(12.0)
+    # Lossy H.264: the first decoded frame is close to the PNG (mean error < 8 of 255).
+    png = np.asarray(Image.open(orbit_sequence.folder / "frame_00000.png"), dtype=float)
+    assert np.mean(np.abs(frames[0].mean(axis=2) - png)) < 8.0
+
+
+def test_gif_and_contact_sheet(orbit_sequence):
+    gif = Image.open(orbit_sequence.paths["gif"])
+    assert gif.n_frames == 6 and gif.size == (32, 18)
+    sheet = Image.open(orbit_sequence.paths["sheet"])
+    # 6 tiles in one row with 2-pixel gaps.
+    assert sheet.size == (6 * 34 + 2, 18 + 4)
+
+
+def test_light_curve_csv_lists_every_frame(orbit_sequence):
+    with open(orbit_sequence.paths["lightcurve_csv"], newline="") as handle:
+        rows = list(csv.DictReader(handle))
+    assert [int(r["frame"]) for r in rows] == list(range(6))
+    assert [float(r["observer_time_M"]) for r in rows] == [15.0 * k for k in range(6)]
+    assert np.allclose([float(r["flux"]) for r in rows], orbit_sequence.fluxes)
+    assert Image.open(orbit_sequence.paths["lightcurve_png"]).format == "PNG"
+    assert orbit_sequence.flash["passes"]
+
+
+def _frames(levels, size=(16, 16)):
+    return [np.full(size, level) for level in levels]
+
+
+def test_flash_check_counts_general_flashes():
+    # WCAG 2.2 SC 2.3.1: no more than three general flashes in any one second; a flash is a
+    # pair of opposing changes of >= 10 % relative luminance with the darker state < 0.80.
+    fps = 24.0
+    blink = [1.0 if (k // 3) % 2 else 0.0 for k in range(48)]  # 4 Hz: 4 flashes/s
+    report = flash_check(_frames(blink), fps)
+    assert report["worst_flashes"] == 4 and not report["passes"]
+    three = [1.0 if (k // 4) % 2 else 0.0 for k in range(48)]  # 3 Hz: exactly 3 per second
+    assert flash_check(_frames(three), fps)["worst_flashes"] == 3
+    assert flash_check(_frames(three), fps)["passes"]
+    # Both states brighter than 0.80: not a flash, however fast.
+    bright = [0.85 if k % 2 else 1.0 for k in range(48)]
+    assert flash_check(_frames(bright), fps)["worst_flashes"] == 0
+    # Changes below 10 %: not a flash.
+    faint = [0.3 if k % 2 else 0.35 for k in range(48)]
+    assert flash_check(_frames(faint), fps)["worst_flashes"] == 0
+
+
+def test_flash_check_reports_the_worst_second_and_the_area_rule():
+    fps = 10.0
+    levels = [0.0] * 30 + [1.0 if k % 2 else 0.0 for k in range(10)] + [0.0] * 10
+    report = flash_check(_frames(levels), fps)
+    assert report["worst_flashes"] == 5 and 2.9 <= report["worst_start_s"] <= 3.0
+    # A blinking patch smaller than 25 % of a 10-degree field (WCAG's 341 x 256 of 1024 x 768,
+    # i.e. FLASH_AREA_FRACTION of the frame) is not a general flash.
+    assert FLASH_AREA_FRACTION == pytest.approx(0.25 * 341 * 256 / (1024 * 768))
+    small_patch = []
+    for k in range(24):
+        frame = np.zeros((100, 100))
+        frame[:5, :5] = k % 2  # 0.25 % of the frame
+        small_patch.append(frame)
+    assert flash_check(small_patch, 24.0)["worst_flashes"] == 0
+
+
+def test_relative_luminance_matches_the_srgb_definition():
+    # WCAG 2.2 definition of relative luminance (IEC 61966-2-1 linearisation, Rec. 709 weights).
+    pixel = np.array([[[255, 0, 0], [0, 255, 0], [10, 10, 10]]], dtype=np.uint8)
+    values = relative_luminance(pixel)[0]
+    assert values[0] == pytest.approx(0.2126) and values[1] == pytest.approx(0.7152)
+    assert values[2] == pytest.approx(10 / 255 / 12.92)
+
+
+def test_contact_sheet_picks_evenly_spaced_frames():
+    frames = [np.full((4, 6), k, dtype=np.uint8) for k in range(100)]
+    sheet = contact_sheet(frames, columns=4, max_tiles=8)
+    assert sheet.shape == (2 * 6 + 2, 4 * 8 + 2, 3)
