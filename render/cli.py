@@ -110,11 +110,16 @@ def _still(args):
 
     bar = RayProgress(quiet=args.quiet)
     try:
-        result = render_still(scene, progress=bar)
+        # A still larger than tracing.memory_budget keeps its maps in temporary files
+        # inside the output folder until they are written (render.tiling).
+        result = render_still(scene, progress=bar, workdir=folder)
     finally:
         bar.close()
-    paths = write_still(result, folder, overwrite=args.overwrite)
-    paths.update(write_products(result, folder, overwrite=args.overwrite))
+    try:
+        paths = write_still(result, folder, overwrite=args.overwrite)
+        paths.update(write_products(result, folder, overwrite=args.overwrite))
+    finally:
+        result.release()
     if not args.quiet:
         meta = result.metadata
         counts = ", ".join(f"{k} {v}" for k, v in meta["fate_counts"].items())

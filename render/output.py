@@ -87,10 +87,48 @@ def write_png(path, pixels, overwrite=False, metadata=None):
 
 
 def write_npz(path, arrays, metadata, overwrite=False):
-    """Write arrays plus a JSON ``metadata`` string entry to a compressed NPZ, atomically."""
+    """Write arrays plus a JSON ``metadata`` string entry to a compressed NPZ, atomically.
+
+    Arrays that are memory maps of ``.npy`` files (the maps of a still rendered
+    in tiles, :mod:`render.tiling`) are copied into the archive from their files
+    in chunks by plain reads, so the write never holds them in memory.
+    """
     payload = dict(arrays)
     payload["metadata"] = np.array(json.dumps(metadata, sort_keys=True, default=jsonable))
-    return atomic_write(path, lambda f: np.savez_compressed(f, **payload), overwrite)
+    if not any(_npy_file(a) for a in payload.values()):
+        return atomic_write(path, lambda f: np.savez_compressed(f, **payload), overwrite)
+    return atomic_write(path, lambda f: _stream_npz(f, payload), overwrite)
+
+
+STREAM_CHUNK_BYTES = 16 * 1024 * 1024
+
+
+def _npy_file(array):
+    """The .npy file behind a memory map of a whole ``.npy`` file (not a view of one), or None."""
+    import mmap
+
+    name = getattr(array, "filename", None)
+    # Only the map np.load made has the mmap itself as its base; a slice's base is the map.
+    if (isinstance(array, np.memmap) and isinstance(array.base, mmap.mmap) and name
+            and str(name).endswith(".npy")):
+        return name
+    return None
+
+
+def _stream_npz(handle, payload):
+    """The NPZ layout of ``np.savez_compressed`` (one ``name.npy`` member per array)."""
+    import shutil
+    import zipfile
+
+    with zipfile.ZipFile(handle, "w", compression=zipfile.ZIP_DEFLATED, allowZip64=True) as zf:
+        for name, array in payload.items():
+            with zf.open(f"{name}.npy", "w", force_zip64=True) as member:
+                source = _npy_file(array)
+                if source is None:
+                    np.lib.format.write_array(member, np.asanyarray(array), allow_pickle=False)
+                else:
+                    with open(source, "rb") as npy:
+                        shutil.copyfileobj(npy, member, STREAM_CHUNK_BYTES)
 
 
 def jsonable(value):

@@ -26,6 +26,8 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
     Rays are traced in chunks of ``chunk_rays`` (each chunk one parallel kernel
     call), which bounds the kernel's scratch memory, lets Ctrl-C interrupt a
     long render between chunks, and drives ``progress(done, total)`` if given.
+    Rays of negative conserved energy (``bundle.energy_ratio <= 0``: a camera
+    inside the ergoregion) are not traced and get the fate "unresolved".
     With ``final_state=True`` the dict also holds ``final_state`` (N, 6): the
     state (u, du/dsigma, mu, dmu/dsigma, phi, delay) where each ray ended (see
     :func:`render.geodesics.trace_rays`), for checks of its first integrals.
@@ -33,13 +35,22 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
     r_plus, _ = horizon_radii(spin)
     u_capture = 1.0 / (r_plus * (1.0 + CAPTURE_MARGIN))
     total = bundle.lam.size
+    states = bundle.states
+    negative = ~(np.asarray(bundle.energy_ratio) > 0.0)
+    if np.any(negative):
+        # A camera inside the ergoregion sees photons of negative conserved energy E.
+        # The kernel's states are momenta per unit E, which for E < 0 point into the
+        # photon's future: such rays would be traced the wrong way.  They are not
+        # traced (a non-finite start gives the fate "unresolved" at once).
+        states = np.array(states, dtype=float)
+        states[np.broadcast_to(negative, (total,))] = np.nan
     names = ("r", "phi", "delay", "inward", "fate", "n_crossings", "steps",
              "theta_end", "phi_end", "final_state")
     parts = {name: [] for name in names}
     for start in range(0, max(total, 1), chunk_rays):
         stop = min(start + chunk_rays, total)
         arrays = trace_rays(
-            np.ascontiguousarray(bundle.states[start:stop]),
+            np.ascontiguousarray(states[start:stop]),
             np.ascontiguousarray(bundle.lam[start:stop]),
             np.ascontiguousarray(bundle.eta[start:stop]), float(spin), float(bundle.u_escape),
             u_capture, float(tolerance), int(max_steps), int(max_crossings), int(n_record),

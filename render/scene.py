@@ -454,14 +454,10 @@ def _check_consistency(values):
 
     check_observing(values)
     _check_animation(values, inner)
-    pixels = values["image.width"] * values["image.height"]
-    orders = values["disk.orders"]
-    needed = estimated_bytes(pixels, orders) / 1e9
-    if needed > values["tracing.memory_budget"]:
-        raise SceneError(
-            f"image.width x image.height = {values['image.width']} x {values['image.height']} "
-            f"needs about {needed:.3g} GB with {orders} orders; allowed: at most "
-            f"tracing.memory_budget = {values['tracing.memory_budget']:g} GB")
+    # Refuse, before any work, a still that cannot fit the memory budget even in tiles.
+    from .tiling import check_memory
+
+    check_memory(values)
 
 
 def frame_count(values):

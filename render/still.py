@@ -12,6 +12,7 @@ from .observing import PER_ORDER_PRODUCTS, prepare_observation, shade
 from .geodesics import FATE_DISK, FATE_NAMES
 from .points import trace_bundle
 from .spacetime import horizon_radii, isco_radius
+from .tiling import band_grid, plan_still, render_in_tiles
 
 __all__ = ["StillResult", "render_still", "observer_rays"]
 
@@ -57,6 +58,14 @@ class StillResult:
     metadata: dict = field(default_factory=dict)
     products: dict = field(default_factory=dict)
     tables: dict = field(default_factory=dict)
+    # Temporary files behind the arrays of a still rendered in tiles (render.tiling).
+    storage: object = field(default=None, repr=False, compare=False)
+
+    def release(self):
+        """Delete the temporary files of a tiled still (its arrays become unusable)."""
+        if self.storage is not None:
+            self.storage.release()
+            self.storage = None
 
     def maps(self):
         """The per-pixel arrays by name (what the NPZ holds)."""
@@ -65,10 +74,17 @@ class StillResult:
             "on_disk", "steps")} | dict(self.products)
 
 
-def observer_rays(scene):
-    """Image-plane grid and the initial ray bundle for a scene's observer."""
-    alpha, beta = image_plane_grid(scene["image.width"], scene["image.height"],
-                                   scene["observer.field_of_view"], scene["observer.roll"])
+def observer_rays(scene, rows=None):
+    """Image-plane grid and the initial ray bundle for a scene's observer.
+
+    ``rows = (start, stop)`` limits both to a band of image rows (a tile).
+    """
+    if rows is None:
+        alpha, beta = image_plane_grid(scene["image.width"], scene["image.height"],
+                                       scene["observer.field_of_view"], scene["observer.roll"])
+    else:
+        alpha, beta = band_grid(scene["image.width"], scene["image.height"],
+                                scene["observer.field_of_view"], scene["observer.roll"], rows)
     if scene["observer.kind"] == "distant":
         bundle = distant_observer_rays(alpha, beta, scene.spin, scene["observer.inclination"],
                                        scene["observer.azimuth"])
@@ -79,7 +95,7 @@ def observer_rays(scene):
     return alpha, beta, bundle
 
 
-def render_still(scene, progress=None):
+def render_still(scene, progress=None, *, memory_budget=None, workdir=None):
     """Render a validated :class:`~render.scene.Scene` and return a :class:`StillResult`.
 
     ``progress(done, total)`` is called as rays finish (e.g. a
@@ -91,16 +107,33 @@ def render_still(scene, progress=None):
     >>> result = render_still(default_scene(**{"image.width": 8, "image.height": 8}))
     >>> result.intensity.shape
     (8, 8)
+
+    A still larger than ``tracing.memory_budget`` (or ``memory_budget``, in
+    bytes) is rendered in bands of rows whose arrays go to temporary files in
+    ``workdir`` (see :mod:`render.tiling`); call ``result.release()`` when done.
     """
+    plan = plan_still(scene, memory_budget)
+    # Emission law and observing mode first: a bad profile table fails before any tracing.
+    observation = prepare_observation(scene)
+    if plan.tiles == 1:
+        return _render_band(scene, observation, None, progress)
+    return render_in_tiles(
+        scene, plan, lambda rows, band_progress: _render_band(scene, observation, rows,
+                                                              band_progress),
+        workdir=workdir, progress=progress)
+
+
+def _render_band(scene, observation, rows, progress):
+    """Render the image rows ``rows = (start, stop)`` (all rows if None) as a StillResult."""
     started = time.perf_counter()
     width, height = scene["image.width"], scene["image.height"]
+    if rows is not None:
+        height = rows[1] - rows[0]
     orders = scene["disk.orders"]
     spin = scene.spin
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
     opaque = scene["disk.surface"] == "opaque"
-    # Emission law and observing mode first: a bad profile table fails before any tracing.
-    observation = prepare_observation(scene)
-    alpha, beta, bundle = observer_rays(scene)
+    alpha, beta, bundle = observer_rays(scene, rows)
     raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
                        max_steps=scene["tracing.max_steps"],
                        max_crossings=scene["tracing.max_crossings"],
@@ -144,6 +177,9 @@ def render_still(scene, progress=None):
         },
         "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": r_in,
         "outer_radius": r_out, "fate_counts": counts,
+        # Counted among the unresolved: see render.points.trace_bundle.
+        "unresolved_negative_energy": int(np.count_nonzero(
+            ~(np.broadcast_to(bundle.energy_ratio, (bundle.lam.size,)) > 0.0))),
         "steps_mean": float(raw["steps"].mean()),
         "observing": shaded.info,
         "trace_seconds": traced - started, "total_seconds": time.perf_counter() - started,
