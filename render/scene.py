@@ -171,7 +171,8 @@ KEYS = {spec.path: spec for spec in [
        "Cap on equatorial crossings followed per ray (photon-sphere grazers); then 'unresolved'.",
        low=1, high=100_000),
     _k("tracing.memory_budget", "float", 2.0, "GB", "0.01 <= memory_budget <= 1024",
-       "Largest memory the output arrays of one still may take.", low=0.01, high=1024.0),
+       "Memory one still may use; a larger one renders in row tiles, and one that cannot "
+       "fit even so is refused (docs/robustness.md).", low=0.01, high=1024.0),
     _k("output.png", "bool", True, "-", "true, false", "Write the tone-mapped 8-bit PNG."),
     _k("output.npz", "bool", True, "-", "true, false", "Write the per-pixel data maps (NPZ)."),
     _k("output.fits", "bool", False, "-", "true, false",
@@ -314,6 +315,7 @@ def _coerce(spec, value):
     # Numbers.  YAML booleans are ints in Python: refuse them explicitly.
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         _fail(key, value, f"a number ({spec.allowed})")
+    given = value  # as written: int(1e300) would print 301 digits
     if spec.kind in ("int", "int_or_none"):
         if isinstance(value, float):
             if not value.is_integer():
@@ -326,7 +328,7 @@ def _coerce(spec, value):
     too_low = value < spec.low or (spec.low_open and value == spec.low)
     too_high = value > spec.high or (spec.high_open and value == spec.high)
     if too_low or too_high:
-        _fail(key, value, spec.allowed)
+        _fail(key, given, spec.allowed)
     return value
 
 

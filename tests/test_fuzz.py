@@ -118,3 +118,47 @@ def test_generated_documents_long(document):
 @given(st.one_of(yaml_like.map(lambda t: t.encode("utf-8")), st.binary(max_size=400)))
 def test_generated_text_and_bytes_long(data):
     check_text(data)
+
+
+# --- hand-written hostile documents -------------------------------------------------------
+
+HOSTILE = [
+    ("deep-flow-mappings", "black_hole: " + "{a: " * 30000 + "1" + "}" * 30000 + "\n",
+     ["nested too deeply"]),
+    ("deep-flow-lists", "[" * 60000 + "]" * 60000 + "\n", ["nested too deeply"]),
+    ("nested-value-in-a-number", "black_hole: " + "{spin: " * 300 + "1" + "}" * 300 + "\n",
+     ["black_hole.spin", "expected a number"]),
+    ("largest-float", "black_hole:\n  spin: 1.0e308\n", ["black_hole.spin", "1e+308"]),
+    ("float-overflowing-to-inf", "observer:\n  distance: 1e400\n",
+     ["observer.distance", "inf", "finite"]),
+    ("integral-float-far-too-large", "image:\n  width: 1.0e300\n",
+     ["image.width = 1e+300", "1 <= width <= 65536"]),
+    ("three-hundred-digit-int", "image:\n  height: " + "9" * 300 + "\n", ["image.height"]),
+    ("binary-tag", "black_hole:\n  spin: !!binary aGVsbG8=\n", ["black_hole.spin", "b'hello'"]),
+    ("set-tag", "black_hole: !!set {a, b}\n", ["black_hole"]),
+    ("timestamp", "black_hole:\n  spin: 2001-12-14\n", ["black_hole.spin", "datetime"]),
+    ("unhashable-key", "? [a, b]\n: 1\n", ["not valid scene YAML", "unhashable"]),
+    ("nul-character", "black_hole:\n  spin: 0.5\x00\n", ["not valid scene YAML"]),
+    ("over-long-name", "name: " + "a" * 200000 + "\n", ["name"]),
+]
+
+
+@pytest.mark.parametrize("text,fragments", [c[1:] for c in HOSTILE], ids=[c[0] for c in HOSTILE])
+def test_hostile_scene_is_refused_in_one_line(tmp_path, capsys, no_tracing, text, fragments):
+    from conftest import run_cli
+
+    scene = tmp_path / "scene.yaml"
+    scene.write_text(text, encoding="utf-8")
+    status, out, err = run_cli(["still", scene, "--output-dir", tmp_path / "out"], capsys)
+    assert status == 2 and out == "" and err.count("\n") == 1 and "Traceback" not in err
+    for fragment in fragments:
+        assert fragment in err, (fragment, err)
+    assert not (tmp_path / "out").exists()
+
+
+def test_deeply_nested_override_is_refused_in_one_line(tmp_path, capsys, no_tracing):
+    from conftest import run_cli
+
+    status, out, err = run_cli(["still", "--set", "black_hole.spin=" + "[" * 50000 + "]" * 50000,
+                                "--output-dir", tmp_path / "out"], capsys)
+    assert status == 2 and err.count("\n") == 1 and "nested too deeply" in err
