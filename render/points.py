@@ -3,6 +3,7 @@
 import numpy as np
 
 from .camera import distant_observer_rays
+from .closed_form import closed_form_bundle, resolve_method
 from .disk import redshift_factor
 from .geodesics import FATE_NAMES, trace_rays
 from .spacetime import check_spin, horizon_radii
@@ -65,7 +66,7 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
 
 
 def trace_points(alpha, beta, *, spin, inclination_deg, max_orders=3, tolerance=None,
-                 max_steps=100000, max_crossings=10000):
+                 max_steps=100000, max_crossings=10000, method="integrate"):
     """Equatorial-plane crossings of rays reaching a distant observer at (alpha, beta).
 
     Every crossing of the equatorial plane outside the horizon is reported, in
@@ -86,6 +87,10 @@ def trace_points(alpha, beta, *, spin, inclination_deg, max_orders=3, tolerance=
         Relative tolerance of the integrator (default 1e-9).
     max_steps, max_crossings : int
         Caps per ray; a ray that reaches one gets the fate "unresolved".
+    method : {"integrate", "closed-form", "auto"}
+        Numerical integration, or the elliptic-integral solution of
+        :mod:`render.closed_form` (``"auto"``: the closed form, valid for this
+        distant observer); ``tolerance`` and ``max_steps`` apply to the integrator.
 
     Returns
     -------
@@ -96,7 +101,8 @@ def trace_points(alpha, beta, *, spin, inclination_deg, max_orders=3, tolerance=
         meridian; ``delay`` the regularised coordinate-time delay in M;
         ``fate`` (N,) strings "escaped", "captured" or "unresolved" (the ray
         followed to its end); ``n_crossings`` (N,) all crossings met;
-        ``theta_end``, ``phi_end`` the escape direction.
+        ``theta_end``, ``phi_end`` the escape direction; ``method`` (N,) strings,
+        the method used ("integrate" or "closed-form").
 
     References
     ----------
@@ -121,12 +127,18 @@ def trace_points(alpha, beta, *, spin, inclination_deg, max_orders=3, tolerance=
     beta = np.atleast_1d(np.asarray(beta, dtype=float)).ravel()
     alpha, beta = np.broadcast_arrays(alpha, beta)
     bundle = distant_observer_rays(alpha, beta, spin, inclination)
-    raw = trace_bundle(bundle, spin, n_record=int(max_orders), tolerance=tolerance,
-                       max_steps=max_steps, max_crossings=max_crossings)
+    method = resolve_method(method, "distant")
+    if method == "closed-form":
+        raw = closed_form_bundle(alpha, beta, bundle, spin, inclination,
+                                 n_record=int(max_orders), max_crossings=max_crossings)
+    else:
+        raw = trace_bundle(bundle, spin, n_record=int(max_orders), tolerance=tolerance,
+                           max_steps=max_steps, max_crossings=max_crossings)
     g = redshift_factor(raw["r"], bundle.lam[:, None], spin)
     names = np.array([FATE_NAMES[i] for i in range(len(FATE_NAMES))])
     return {
         "r": raw["r"], "phi": raw["phi"], "g": g, "delay": raw["delay"],
         "fate": names[raw["fate"]], "n_crossings": raw["n_crossings"],
         "theta_end": raw["theta_end"], "phi_end": raw["phi_end"],
+        "method": np.full(alpha.size, method),
     }

@@ -161,6 +161,10 @@ KEYS = {spec.path: spec for spec in [
     _k("observing.line_high", "float", 1.6, "E/E0", "line_low < line_high <= 100",
        "High edge of the line bins in units of the rest energy.", low=0.0, high=100.0,
        low_open=True),
+    _k("tracing.method", "choice", "integrate", "-", "integrate, closed-form, auto",
+       "integrate: Dormand–Prince integration; closed-form: elliptic-integral solution "
+       "(distant observer only; docs/closed_form.md); auto: closed-form where valid.",
+       choices=("integrate", "closed-form", "auto")),
     _k("tracing.tolerance", "float", 1e-9, "-", "1e-14 <= tolerance <= 1e-3",
        "Relative tolerance of the adaptive Dormand–Prince 5(4) step control.",
        low=1e-14, high=1e-3),
@@ -452,6 +456,10 @@ def _check_consistency(values):
         except ValueError as exc:
             raise SceneError(f"observer.distance = {values['observer.distance']!r} is not "
                              f"allowed; {exc}") from None
+    if values["tracing.method"] == "closed-form" and values["observer.kind"] != "distant":
+        _fail("tracing.method", "closed-form",
+              "integrate or auto with observer.kind: camera (the closed form needs a distant "
+              "observer)")
     from .observing import check_observing
 
     check_observing(values)

@@ -10,6 +10,7 @@ from .camera import camera_rays, distant_observer_rays, image_plane_grid
 from .disk import on_disk, redshift_factor
 from .observing import PER_ORDER_PRODUCTS, prepare_observation, shade
 from .geodesics import FATE_DISK, FATE_NAMES
+from .closed_form import closed_form_bundle, resolve_method
 from .points import trace_bundle
 from .spacetime import horizon_radii, isco_radius
 from .tiling import band_grid, plan_still, render_in_tiles
@@ -134,10 +135,17 @@ def _render_band(scene, observation, rows, progress):
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
     opaque = scene["disk.surface"] == "opaque"
     alpha, beta, bundle = observer_rays(scene, rows)
-    raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
-                       max_steps=scene["tracing.max_steps"],
-                       max_crossings=scene["tracing.max_crossings"],
-                       stop_on_disk=opaque, r_in=r_in, r_out=r_out, progress=progress)
+    method = resolve_method(scene["tracing.method"], scene["observer.kind"])
+    if method == "closed-form":
+        raw = closed_form_bundle(alpha, beta, bundle, spin, scene["observer.inclination"],
+                                 n_record=orders, max_crossings=scene["tracing.max_crossings"],
+                                 stop_on_disk=opaque, r_in=r_in, r_out=r_out,
+                                 want_end=False, progress=progress)
+    else:
+        raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
+                           max_steps=scene["tracing.max_steps"],
+                           max_crossings=scene["tracing.max_crossings"],
+                           stop_on_disk=opaque, r_in=r_in, r_out=r_out, progress=progress)
     traced = time.perf_counter()
     g = redshift_factor(raw["r"], bundle.lam[:, None], spin, bundle.energy_ratio[:, None])
     hits = on_disk(raw["r"], r_in, r_out)
@@ -180,6 +188,7 @@ def _render_band(scene, observation, rows, progress):
         # Counted among the unresolved: see render.points.trace_bundle.
         "unresolved_negative_energy": int(np.count_nonzero(
             ~(np.broadcast_to(bundle.energy_ratio, (bundle.lam.size,)) > 0.0))),
+        "tracing_method": method,
         "steps_mean": float(raw["steps"].mean()),
         "observing": shaded.info,
         "trace_seconds": traced - started, "total_seconds": time.perf_counter() - started,
