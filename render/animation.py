@@ -180,8 +180,24 @@ def _frame_scene(scene, values, frame):
         raise SceneError(f"frame {frame}: {exc}") from None
 
 
-def _sequence_white(scene):
-    """The reference intensity of the fixed exposure rule, from frame 0 (as render_still)."""
+def _sequence_white(scenes):
+    """One reference intensity for all frames: the largest of the frames' own whites.
+
+    Each frame's white is what render_still would use (the emission law's intensity at
+    the inner edge); taking the largest keeps a sweep that moves the inner edge (spin)
+    from saturating, and is the white of every frame when nothing that sets it changes.
+    """
+    whites = {}
+    for scene in scenes:
+        key = tuple(sorted((k, v) for k, v in scene.values.items()
+                           if k.split(".")[0] in ("black_hole", "disk", "emission", "observing")))
+        if key not in whites:
+            whites[key] = _frame_white(scene)
+    return max(whites.values())
+
+
+def _frame_white(scene):
+    """The reference intensity of the fixed exposure rule for one frame (as render_still)."""
     from .observing import prepare_observation
 
     observation = prepare_observation(scene)
@@ -234,7 +250,7 @@ def plan_sequence(scene):
                 frame_values["observer.frame"] = "zamo"  # moving cameras: boosted ZAMO
         frame = _frame_scene(scene, frame_values, k) if position is not None else scenes[k]
         jobs.append(FrameJob(k, frame, clock, t, velocity))
-    white = _sequence_white(jobs[0].scene)
+    white = _sequence_white([job.scene for job in jobs])
     for job in jobs:
         job.white = white
     return SequencePlan(scene, jobs, white, scene_hash(scene), scene["animation.fps"])
@@ -605,6 +621,23 @@ def prepare_folder(plan, output_dir, overwrite=False):
     return folder, manifest
 
 
+# With fewer frames left than this, a local pool's start-up (numba's cache load in every
+# spawned worker, ~1.5 s) outweighs its gain (README, Performance: bench_sequence.py).
+AUTO_POOL_MIN_FRAMES = 8
+
+
+def auto_workers(frames_left, cores=None):
+    """The default worker count: every core for a long enough sequence, else 1.
+
+    Examples
+    --------
+    >>> auto_workers(120, cores=2), auto_workers(3, cores=2), auto_workers(120, cores=1)
+    (2, 1, 1)
+    """
+    cores = cores or os.cpu_count() or 1
+    return cores if frames_left >= AUTO_POOL_MIN_FRAMES else 1
+
+
 def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, overwrite=False,
                     progress=None, products=True):
     """Render (or finish) a scene's frame sequence and its video, contact sheet and light curve.
@@ -615,8 +648,8 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
         With an ``animation`` section (see the module docstring).
     output_dir : str or Path
         Frames go to ``output_dir/<scene name>/``.
-    workers : int
-        Local processes (1: render in this process).
+    workers : int or None
+        Local processes (1: render in this process; None: :func:`auto_workers`).
     scheduler : str, optional
         Address of a Dask distributed scheduler (e.g. ``tcp://10.0.0.5:8786``).
     overwrite : bool
@@ -652,6 +685,8 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
                 and f"{job.index:05d}" not in manifest["frames"]]
         rendered = []
         total = len(plan.jobs)
+        if workers is None:
+            workers = auto_workers(len(todo))
         if progress is not None:
             progress(len(done), total, None)
         for result in frame_results(todo, workers=workers, client=backend):

@@ -45,8 +45,9 @@ def _parser():
         "sequence", help="render (or resume) a scene's animation: frames, video, light curve")
     sequence.add_argument("scene", help="YAML scene file with an animation section")
     _add_common_options(sequence)
-    sequence.add_argument("--workers", type=int, default=1, metavar="N",
-                          help="local processes rendering frames (default: 1)")
+    sequence.add_argument("--workers", type=int, default=None, metavar="N",
+                          help="local processes rendering frames (default: one per core "
+                               "when 8 or more frames are left, else 1)")
     sequence.add_argument("--scheduler", metavar="ADDRESS",
                           help="Dask distributed scheduler, e.g. tcp://10.0.0.5:8786")
     sequence.add_argument("--quiet", action="store_true", help="print nothing on success")
@@ -140,7 +141,7 @@ def _sequence(args):
     from .animation import render_sequence
     from .progress import FrameProgress
 
-    if args.workers < 1:
+    if args.workers is not None and args.workers < 1:
         raise OutputFolderError(f"--workers {args.workers} is not allowed; expected N >= 1")
     scene = _load(args)
     bar = FrameProgress(quiet=args.quiet)

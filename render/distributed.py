@@ -108,11 +108,31 @@ def _dask_task(job, threads):
     return render_frame(job, numba_threads=threads.get(get_worker().address, 1))
 
 
-def _pool_init():
+def _pool_init(parent):
     # Workers never print tracebacks of Ctrl-C: the client reports the interruption.
     import signal
+    import threading
+    import time
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+    def exit_when_orphaned():
+        # A client killed with SIGKILL cannot shut its pool down; its workers would wait
+        # for work forever.  They leave once their parent is gone.
+        while os.getppid() == parent:
+            time.sleep(0.5)
+        os._exit(1)
+
+    threading.Thread(target=exit_when_orphaned, daemon=True).start()
+
+
+def _caused_by_interrupt(exc):
+    seen = 0
+    while exc is not None and seen < 1000:
+        if isinstance(exc, KeyboardInterrupt):
+            return True
+        exc, seen = exc.__cause__ or exc.__context__, seen + 1
+    return False
 
 
 def frame_results(jobs, workers=1, client=None):
@@ -144,7 +164,15 @@ def frame_results(jobs, workers=1, client=None):
         return
     if workers <= 1:
         for job in jobs:
-            yield render_frame(job)
+            try:
+                result = render_frame(job)
+            except SystemError as exc:
+                # Ctrl-C inside the numba kernel surfaces as "returned a result with an
+                # exception set", caused by the KeyboardInterrupt: report it as one.
+                if _caused_by_interrupt(exc):
+                    raise KeyboardInterrupt from None
+                raise
+            yield result
         return
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
@@ -153,7 +181,7 @@ def frame_results(jobs, workers=1, client=None):
     context = multiprocessing.get_context("spawn")
     threads = local_threads(workers)
     with ProcessPoolExecutor(max_workers=int(workers), mp_context=context,
-                             initializer=_pool_init) as pool:
+                             initializer=_pool_init, initargs=(os.getpid(),)) as pool:
         futures = [pool.submit(render_frame, job, threads) for job in jobs]
         try:
             for future in futures:

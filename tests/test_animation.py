@@ -130,29 +130,45 @@ def _logged_frames(text):
     return [int(line.split()[1]) for line in text.splitlines() if line.startswith("frame ")]
 
 
-def test_resume_after_kill_renders_only_missing_frames(tmp_path):
-    # Kill -9 mid-sequence, then rerun: every frame present and intact, none rendered twice.
-    frames = 10
+def _run_until(command, env, frames_seen, stop):
+    """Start ``command``, read its per-frame log lines, send ``stop`` after ``frames_seen``."""
+    process = subprocess.Popen(command, stderr=subprocess.PIPE, stdout=subprocess.DEVNULL,
+                               text=True, env=env)
+    seen = []
+    for line in process.stderr:
+        seen += _logged_frames(line)
+        if len(seen) >= frames_seen:
+            process.send_signal(stop)
+            break
+    status = process.wait(timeout=120)
+    process.stderr.close()
+    return status, seen
+
+
+def test_resume_after_ctrl_c_and_kill_renders_only_missing_frames(tmp_path):
+    # Ctrl-C, then kill -9, mid-sequence, then rerun: every frame present and intact, none
+    # rendered twice.  One worker keeps it quick (the pool's own kill -9 clean-up is in
+    # test_distributed.py).
+    frames = 12
     scene = _write_scene(tmp_path / "resume.yaml", **{
         "image.width": 48, "image.height": 27, "animation.frames": frames,
         "animation.keyframes": [{"frame": 0, "observer.inclination": 10},
                                 {"frame": frames - 1, "observer.inclination": 85}]})
     out = tmp_path / "out"
-    command = [sys.executable, "-m", "render", "sequence", str(scene), "--output-dir", str(out)]
-    env = dict(os.environ, NUMBA_NUM_THREADS="1")
-    first = subprocess.Popen(command, stderr=subprocess.PIPE, stdout=subprocess.DEVNULL,
-                             text=True, env=env)
-    seen = []
-    for line in first.stderr:
-        seen += _logged_frames(line)
-        if len(seen) >= 2:
-            first.send_signal(signal.SIGKILL)
-            break
-    first.wait(timeout=120)
-    first.stderr.close()
+    command = [sys.executable, "-m", "render", "sequence", str(scene), "--output-dir", str(out),
+               "--workers", "1"]
+    env = dict(os.environ)
+    status, seen = _run_until(command, env, 2, signal.SIGINT)
+    assert status == 130  # the CLI's exit status after Ctrl-C
+    manifest = json.loads((out / "resume" / "manifest.json").read_text())
+    interrupted = {int(k) for k in manifest["frames"]}
+    assert set(seen) <= interrupted and len(interrupted) < frames - 4, "Ctrl-C came too late"
+    status, resumed = _run_until(command, env, 2, signal.SIGKILL)
+    assert status == -signal.SIGKILL
+    assert not set(resumed) & interrupted  # the resumed run skipped the finished frames
     manifest = json.loads((out / "resume" / "manifest.json").read_text())
     finished = {int(k) for k in manifest["frames"]}
-    assert set(seen) <= finished and len(finished) < frames, "kill came too late to test"
+    assert set(seen) | set(resumed) <= finished and len(finished) < frames, "kill came too late"
     second = subprocess.run(command, capture_output=True, text=True, env=env, timeout=300)
     assert second.returncode == 0, second.stderr
     again = _logged_frames(second.stderr)
@@ -296,3 +312,16 @@ def test_example_sequence_scenes_plan_without_error(name, no_tracing):
 
     plan = plan_sequence(load_scene(REPO / "scenes" / f"{name}.yaml"))
     assert len(plan.jobs) in (72, 120)
+
+
+def test_one_white_for_a_sweep_is_the_largest_frame_white():
+    # A spin sweep moves the inner edge (the ISCO) and with it the exposure's white,
+    # I_em(r_in) = r_in^-3 for the power law (README exposure rule); the sequence uses the
+    # largest, so no frame saturates for want of its own white and all share one exposure.
+    from render.spacetime import isco_radius
+
+    scene = small(**{"animation.frames": 3, "animation.keyframes": [
+        {"frame": 0, "black_hole.spin": 0.0}, {"frame": 2, "black_hole.spin": 0.9}]})
+    plan = plan_sequence(scene)
+    assert {job.white for job in plan.jobs} == {plan.white}
+    assert plan.white == pytest.approx(isco_radius(0.9) ** -3, rel=1e-12)

@@ -64,3 +64,37 @@ def test_unreachable_scheduler_is_one_line():
 def test_numba_threads_share_the_cores():
     assert local_threads(2, cores=2) == 1
     assert local_threads(3, cores=8) == 2
+
+
+@pytest.mark.slow
+def test_pool_workers_leave_when_the_client_is_killed(tmp_path):
+    # kill -9 of the client cannot shut its pool down: the workers must notice and exit
+    # rather than wait for work forever (psutil lists them before the kill).
+    import signal
+    import subprocess
+    import sys
+
+    import psutil
+    import yaml
+
+    scene = tmp_path / "orphans.yaml"
+    scene.write_text(yaml.safe_dump({
+        "image": {"width": 32, "height": 18}, "observer": {"kind": "distant"},
+        "animation": {"frames": 40, "keyframes": [{"frame": 0, "observer.inclination": 10},
+                                                  {"frame": 39, "observer.inclination": 80}]}}))
+    client = subprocess.Popen([sys.executable, "-m", "render", "sequence", str(scene),
+                               "--output-dir", str(tmp_path / "out"), "--workers", "2"],
+                              stderr=subprocess.PIPE, stdout=subprocess.DEVNULL, text=True)
+    for line in client.stderr:
+        if line.startswith("frame "):
+            break
+    workers = [p for p in psutil.Process(client.pid).children(recursive=True)
+               if "spawn_main" in " ".join(p.cmdline())]
+    client.send_signal(signal.SIGKILL)
+    client.wait(timeout=30)
+    client.stderr.close()
+    assert len(workers) == 2
+    _, alive = psutil.wait_procs(workers, timeout=20)
+    for process in alive:  # clean up before failing
+        process.kill()
+    assert not alive
