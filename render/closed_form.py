@@ -33,7 +33,7 @@ three classes of root structure occur:
 * class 2 (four real roots, r4 > r_+): the ray turns at r4 and escapes,
       r(sigma) = r4 + r43 r41 sn^2(X | k) / (r31 - r41 sn^2(X | k)),
       X = sigma sqrt(r31 r42)/2 - F(arcsin sqrt(r31/r41) | k),  k = r32 r41 / (r31 r42)
-  (Byrd & Friedman 1971, 258.00; Gralla & Lupsasca 2020b, eq. B?, from memory);
+  (Byrd & Friedman 1971, 258.00; the same form as in Gralla & Lupsasca 2020b, from memory);
 * class 3 (four real roots, r4 < r_+): the same formula until the ray is captured;
 * class 4 (r3, r4 complex): the ray falls in monotonically,
       r(sigma) = (r2 B - r1 A + (r2 B + r1 A) cn(X | k)) / (B - A + (A + B) cn(X | k)),
@@ -42,9 +42,9 @@ three classes of root structure occur:
   (Byrd & Friedman 1971, 260.00).
 Rays with eta <= 0 (the vortical ones of Gralla & Lupsasca, and the pole-grazers
 with eta = 0) never cross the equator; their fate alone is given, from whether
-R has a real root outside the horizon.  (The numbering is that of the radial
-classes in Gralla & Lupsasca 2020a; class 1, all roots inside the horizon with
-r4 < r_- beyond reach, cannot occur for a ray from infinity with eta > 0.)
+R has a real root outside the horizon.  (The class numbers are meant to follow
+Gralla & Lupsasca 2020a, from memory; their remaining class, no real root at
+all, needs eta < 0 and so never reaches the equator.)
 
 The radial parts of the azimuth, int a (2 r - a lam)/Delta dsigma, and of the
 regularised delay, int (r^2 + a^2)(eta + (lam - a)^2) / (r^2 + a^2 - a lam + sqrt R)
