@@ -5,7 +5,7 @@ import numpy as np
 from .camera import distant_observer_rays
 from .closed_form import closed_form_bundle, resolve_method
 from .disk import redshift_factor
-from .geodesics import FATE_NAMES, trace_rays
+from .geodesics import FATE_NAMES, deferred_interrupts, trace_rays
 from .spacetime import check_spin, horizon_radii
 
 __all__ = ["trace_points", "trace_bundle", "CAPTURE_MARGIN", "DEFAULT_TOLERANCE"]
@@ -50,12 +50,14 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
     parts = {name: [] for name in names}
     for start in range(0, max(total, 1), chunk_rays):
         stop = min(start + chunk_rays, total)
-        arrays = trace_rays(
-            np.ascontiguousarray(states[start:stop]),
-            np.ascontiguousarray(bundle.lam[start:stop]),
-            np.ascontiguousarray(bundle.eta[start:stop]), float(spin), float(bundle.u_escape),
-            u_capture, float(tolerance), int(max_steps), int(max_crossings), int(n_record),
-            bool(stop_on_disk), float(r_in), float(r_out), bool(final_state))
+        with deferred_interrupts():
+            arrays = trace_rays(
+                np.ascontiguousarray(states[start:stop]),
+                np.ascontiguousarray(bundle.lam[start:stop]),
+                np.ascontiguousarray(bundle.eta[start:stop]), float(spin),
+                float(bundle.u_escape), u_capture, float(tolerance), int(max_steps),
+                int(max_crossings), int(n_record), bool(stop_on_disk), float(r_in),
+                float(r_out), bool(final_state))
         for name, array in zip(names, arrays):
             parts[name].append(array)
         if progress is not None:

@@ -227,3 +227,26 @@ def test_sigint_during_tracing_exits_130_and_leaves_no_files(tmp_path):
     assert err.count("\n") == 1 and "interrupted" in err and str(out_dir) in err, err
     assert "Traceback" not in err and out == ""
     assert list(out_dir.iterdir()) == []
+
+
+def test_sigint_is_deferred_until_the_kernel_call_returns():
+    from render.geodesics import deferred_interrupts
+
+    reached_end = False
+    with pytest.raises(KeyboardInterrupt):
+        with deferred_interrupts():
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.05)  # a signal not held back would interrupt here
+            reached_end = True
+    assert reached_end
+    # A handler installed by the caller gets the deferred signal instead.
+    seen = []
+    previous = signal.signal(signal.SIGINT, lambda number, frame: seen.append(number))
+    try:
+        with deferred_interrupts():
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.05)
+            assert seen == []
+        assert seen == [signal.SIGINT]
+    finally:
+        signal.signal(signal.SIGINT, previous)
