@@ -38,6 +38,8 @@ def _parser():
     still.add_argument("scene", nargs="?", help="YAML scene file (default: built-in default scene)")
     _add_common_options(still)
     still.add_argument("--quiet", action="store_true", help="print nothing on success")
+    still.add_argument("--scheduler", metavar="ADDRESS",
+                       help="render bands of rows on a Dask distributed scheduler")
 
     commands.add_parser("keys", help="print the scene-key reference (Markdown)")
 
@@ -99,6 +101,11 @@ def _still(args):
     # overwritten silently).
     check_free(list(still_paths(scene.document, folder).values())
                + list(product_paths(scene.document, folder).values()), args.overwrite)
+    scheduler = getattr(args, "scheduler", None)
+    if scheduler:
+        from .distributed import check_scheduler
+
+        check_scheduler(scheduler)  # unreachable: one line before the folder is made
     # Likewise make sure the folder can be written before the (long) render.
     try:
         folder.mkdir(parents=True, exist_ok=True)
@@ -113,7 +120,12 @@ def _still(args):
     try:
         # A still larger than tracing.memory_budget keeps its maps in temporary files
         # inside the output folder until they are written (render.tiling).
-        result = render_still(scene, progress=bar, workdir=folder)
+        if scheduler:
+            from .distributed import render_still_on_cluster
+
+            result = render_still_on_cluster(scene, scheduler, workdir=folder, progress=bar)
+        else:
+            result = render_still(scene, progress=bar, workdir=folder)
     finally:
         bar.close()
     try:

@@ -1,8 +1,9 @@
 """Spreading frames over processes: a local pool or a Dask distributed cluster.
 
-The unit of work is one frame (:class:`render.animation.FrameJob`).  Workers
-return the frame's pixels; the client writes them, in frame order, so the
-manifest and the files look the same whichever backend rendered them.
+The unit of work is one frame (:class:`render.animation.FrameJob`), or one band
+of rows of a large still (:func:`render_still_on_cluster`).  Workers return the
+frame's pixels or the band's arrays; the client writes them, in order, so the
+files look the same whichever backend rendered them.
 
 Numba's parallel kernel would start one thread per core in every worker; with
 several workers per machine that oversubscribes the cores.  Each task therefore
@@ -22,7 +23,8 @@ Every worker needs the same nullray installed (``pip install -e .``).
 import os
 from collections import Counter
 
-__all__ = ["SchedulerError", "connect", "frame_results", "local_threads"]
+__all__ = ["SchedulerError", "connect", "check_scheduler", "frame_results", "local_threads",
+           "render_still_on_cluster"]
 
 CONNECT_TIMEOUT_S = 10
 
@@ -56,6 +58,11 @@ def connect(address, timeout=CONNECT_TIMEOUT_S):
         detail = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise SchedulerError(f"--scheduler {address!r} cannot be reached: {detail}") from None
     return client
+
+
+def check_scheduler(address, timeout=CONNECT_TIMEOUT_S):
+    """Raise :class:`SchedulerError` now if ``address`` refuses connections (no Dask needed)."""
+    _check_reachable(address, timeout)
 
 
 def _check_reachable(address, timeout):
@@ -189,3 +196,60 @@ def frame_results(jobs, workers=1, client=None):
         finally:
             for future in futures:
                 future.cancel()
+
+
+def _still_band_task(scene, rows, threads):
+    from dask.distributed import get_worker
+    import numba
+
+    from .observing import prepare_observation
+    from .still import _render_band
+
+    count = threads.get(get_worker().address, 1)
+    numba.set_num_threads(max(1, min(int(count), numba.config.NUMBA_NUM_THREADS)))
+    return _render_band(scene, prepare_observation(scene), rows, None)
+
+
+def render_still_on_cluster(scene, address, *, workdir=None, progress=None, bands_per_worker=4):
+    """Render one still as bands of rows on a Dask cluster; return a StillResult.
+
+    The bands are submitted at once and collected in order by the client, which
+    assembles them as :func:`render.tiling.render_in_tiles` does for a still
+    larger than its memory budget (temporary files in ``workdir``; call
+    ``result.release()`` when written), so the result is the same as the
+    local render's.  Observing modes that shade the whole image at once
+    cannot be split and are refused.
+    """
+    import dataclasses
+
+    from .observing import prepare_observation
+    from .scene import SceneError
+    from .tiling import is_tileable, plan_still, render_in_tiles
+
+    prepare_observation(scene)
+    base = plan_still(scene)
+    if not is_tileable(scene.values):
+        raise SceneError(f"observing.mode = {scene['observing.mode']!r} shades the whole image "
+                         "at once and cannot be split into bands for --scheduler; render it "
+                         "without --scheduler")
+    client = connect(address)
+    futures = {}
+    try:
+        threads = _dask_threads(client)
+        wanted = max(1, bands_per_worker * max(1, len(threads)))
+        rows = max(1, min(base.rows_per_tile, -(-base.height // wanted)))
+        plan = dataclasses.replace(base, rows_per_tile=rows,
+                                   tile_bytes=base.whole_bytes * rows / base.height)
+        futures = {band: client.submit(_still_band_task, scene, band, threads, pure=False)
+                   for band in plan.bands()}
+
+        def render_band(band, band_progress):
+            part = futures.pop(band).result()
+            band_progress((band[1] - band[0]) * plan.width, None)
+            return part
+
+        return render_in_tiles(scene, plan, render_band, workdir=workdir, progress=progress)
+    finally:
+        for future in futures.values():
+            future.cancel()
+        client.close()

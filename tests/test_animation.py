@@ -204,6 +204,15 @@ def test_a_corrupt_frame_is_rendered_again_and_a_changed_scene_is_refused(tmp_pa
     assert status == 0 and "3 frames rendered, 0 already finished" in out_text
 
 
+def test_unreachable_scheduler_for_a_still_exits_2_with_nothing_written(tmp_path, capsys,
+                                                                       no_tracing):
+    out = tmp_path / "out"
+    status, _, err = run_cli(["still", "--set", "image.width=8", "--set", "image.height=8",
+                              "--output-dir", out, "--scheduler", "tcp://127.0.0.1:9"], capsys)
+    assert status == 2 and "cannot be reached" in err and len(err.strip().splitlines()) == 1
+    assert not out.exists()
+
+
 @pytest.mark.parametrize("extra, message", [
     (["--set", "animation.frames=0"], "animation.frames = 0"),
     (["--set", "animation.frames=-2"], "animation.frames = -2"),
