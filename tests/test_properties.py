@@ -135,9 +135,14 @@ def check_end_states(spin, inclination, observer, fov, width, disk, opaque):
     # Every initial state is finite (a degenerate frame near the axis once gave NaN),
     # and every ray that ended has a final state (unresolved ones: their last state).
     assert np.all(np.isfinite(bundle.states)) and np.all(np.isfinite(bundle.eta))
-    final = raw["final_state"]
+    # A camera just outside the horizon may sit inside the ergoregion: photons of negative
+    # conserved energy are not traced (fate unresolved, no final state; docs/robustness.md).
+    traced = np.broadcast_to(bundle.energy_ratio, bundle.lam.shape) > 0.0
+    assert np.all(raw["fate"][~traced] == 3)
+    final = raw["final_state"][traced]
     assert np.all(np.isfinite(final)), final[~np.isfinite(final).all(axis=1)]
-    radial, polar, null = carter_residuals(final, bundle.lam, bundle.eta, spin)
+    lam, eta = bundle.lam[traced], bundle.eta[traced]
+    radial, polar, null = carter_residuals(final, lam, eta, spin)
     assert radial.max() <= INTEGRAL_BOUND, radial.max()
     assert polar.max() <= INTEGRAL_BOUND, polar.max()
     assert null.max() <= INTEGRAL_BOUND, null.max()
