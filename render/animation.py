@@ -41,7 +41,6 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .camera import camera_rays, distant_observer_rays, image_plane_grid
 from .color import srgb_encode, to_uint8, tone_map
 from .disk import on_disk, redshift_factor
 from .geodesics import FATE_DISK
@@ -49,6 +48,7 @@ from .motion import MotionError, time_dilation, velocity_from_coordinates, zamo_
 from .pattern import emission_time, pattern_factor
 from .scene import SceneError, frame_count, scene_from_dict
 from .spacetime import horizon_radii, keplerian_angular_velocity, metric_functions
+from .still import observer_rays
 
 __all__ = ["FrameJob", "SequencePlan", "plan_sequence", "interpolate", "render_frame",
            "render_sequence", "SequenceResult", "scene_hash", "FRAME_PATTERN"]
@@ -460,15 +460,7 @@ def _trace(scene, velocity, progress=None):
     key = _geometry_key(scene, velocity)
     if key in _TRACE_CACHE:
         return _TRACE_CACHE[key]
-    alpha, beta = image_plane_grid(scene["image.width"], scene["image.height"],
-                                   scene["observer.field_of_view"], scene["observer.roll"])
-    if scene["observer.kind"] == "distant":
-        bundle = distant_observer_rays(alpha, beta, scene.spin, scene["observer.inclination"],
-                                       scene["observer.azimuth"])
-    else:
-        bundle = camera_rays(alpha, beta, scene.spin, scene["observer.distance"],
-                             scene["observer.inclination"], scene["observer.azimuth"],
-                             scene["observer.frame"], velocity=velocity)
+    _, _, bundle = observer_rays(scene, velocity=velocity)
     raw = trace_bundle(bundle, scene.spin, n_record=scene["disk.orders"],
                        tolerance=scene["tracing.tolerance"],
                        max_steps=scene["tracing.max_steps"],

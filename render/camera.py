@@ -91,7 +91,7 @@ class RayBundle:
     u_escape: float
 
 
-def image_plane_grid(width, height, field_of_view, roll_deg=0.0):
+def image_plane_grid(width, height, field_of_view, roll_deg=0.0, rows=None):
     """Image-plane coordinates of pixel centres, in units of M.
 
     Parameters
@@ -102,6 +102,9 @@ def image_plane_grid(width, height, field_of_view, roll_deg=0.0):
         Full width of the image in M (pixels are square).
     roll_deg : float
         Counter-clockwise rotation of the image axes about the line of sight.
+    rows : (start, stop), optional
+        Only this band of rows (a tile), bit for bit the same values as the
+        corresponding rows of the full grid.
 
     Returns
     -------
@@ -116,7 +119,8 @@ def image_plane_grid(width, height, field_of_view, roll_deg=0.0):
     """
     scale = field_of_view / width
     x = (np.arange(width) + 0.5 - 0.5 * width) * scale
-    y = (0.5 * height - np.arange(height) - 0.5) * scale
+    row_numbers = np.arange(height) if rows is None else np.arange(height)[rows[0]:rows[1]]
+    y = (0.5 * height - row_numbers - 0.5) * scale
     xx, yy = np.meshgrid(x, y)
     roll = np.radians(roll_deg)
     if roll == 0.0:

@@ -47,7 +47,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .camera import camera_rays, distant_observer_rays
+from .camera import camera_rays
 from .geodesics import FATE_CAPTURED, FATE_ESCAPED
 from .output import atomic_write, check_free, jsonable
 from .points import trace_bundle, trace_points

@@ -13,7 +13,7 @@ from .geodesics import FATE_DISK, FATE_NAMES
 from .closed_form import closed_form_bundle, resolve_method
 from .points import trace_bundle
 from .spacetime import horizon_radii, isco_radius
-from .tiling import band_grid, plan_still, render_in_tiles
+from .tiling import plan_still, render_in_tiles
 
 __all__ = ["StillResult", "render_still", "observer_rays"]
 
@@ -75,24 +75,23 @@ class StillResult:
             "on_disk", "steps")} | dict(self.products)
 
 
-def observer_rays(scene, rows=None):
+def observer_rays(scene, rows=None, velocity=None):
     """Image-plane grid and the initial ray bundle for a scene's observer.
 
-    ``rows = (start, stop)`` limits both to a band of image rows (a tile).
+    ``rows = (start, stop)`` limits both to a band of image rows (a tile);
+    ``velocity`` is a moving camera's velocity in its frame (see
+    :func:`render.camera.camera_rays`).
     """
-    if rows is None:
-        alpha, beta = image_plane_grid(scene["image.width"], scene["image.height"],
-                                       scene["observer.field_of_view"], scene["observer.roll"])
-    else:
-        alpha, beta = band_grid(scene["image.width"], scene["image.height"],
-                                scene["observer.field_of_view"], scene["observer.roll"], rows)
+    alpha, beta = image_plane_grid(scene["image.width"], scene["image.height"],
+                                   scene["observer.field_of_view"], scene["observer.roll"],
+                                   rows=rows)
     if scene["observer.kind"] == "distant":
         bundle = distant_observer_rays(alpha, beta, scene.spin, scene["observer.inclination"],
                                        scene["observer.azimuth"])
     else:
         bundle = camera_rays(alpha, beta, scene.spin, scene["observer.distance"],
                              scene["observer.inclination"], scene["observer.azimuth"],
-                             scene["observer.frame"])
+                             scene["observer.frame"], velocity=velocity)
     return alpha, beta, bundle
 
 

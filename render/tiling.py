@@ -31,7 +31,7 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["TilePlan", "plan_still", "check_memory", "band_grid", "render_in_tiles",
+__all__ = ["TilePlan", "plan_still", "check_memory", "render_in_tiles",
            "TileStore"]
 
 BYTES_PER_PIXEL = 400
@@ -133,21 +133,6 @@ def check_memory(values, budget_bytes=None):
 def plan_still(scene, budget_bytes=None):
     """:func:`check_memory` for a validated scene."""
     return check_memory(scene.values, budget_bytes)
-
-
-def band_grid(width, height, field_of_view, roll_deg, rows):
-    """Rows ``rows = (start, stop)`` of :func:`render.camera.image_plane_grid`, bit for bit."""
-    start, stop = rows
-    scale = field_of_view / width
-    x = (np.arange(width) + 0.5 - 0.5 * width) * scale
-    # The same expression as the full grid, evaluated on the band's row numbers only.
-    y = (0.5 * height - np.arange(height)[start:stop] - 0.5) * scale
-    xx, yy = np.meshgrid(x, y)
-    roll = np.radians(roll_deg)
-    if roll == 0.0:
-        return xx, yy
-    c, s = np.cos(roll), np.sin(roll)
-    return c * xx - s * yy, s * xx + c * yy
 
 
 class TileStore:

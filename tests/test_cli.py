@@ -16,7 +16,6 @@ import numpy as np
 import pytest
 from PIL import Image
 
-import render.points
 from render.cli import EXIT_BAD_INPUT, main
 from render.scene import KEYS, load_scene, scene_from_dict
 

@@ -20,7 +20,7 @@ from render.cli import EXIT_BAD_INPUT
 from render.output import write_still
 from render.scene import SceneError
 from render.still import render_still
-from render.tiling import band_grid, check_memory
+from render.tiling import check_memory
 
 from conftest import run_cli  # noqa: E402  (shared test helpers)
 
@@ -88,7 +88,7 @@ def test_tiled_still_equals_the_untiled_one(mode, tmp_path):
 def test_band_grid_is_the_full_grid_bit_for_bit(roll):
     alpha, beta = image_plane_grid(13, 11, 17.5, roll)
     for rows in [(0, 11), (0, 1), (3, 7), (10, 11)]:
-        a, b = band_grid(13, 11, 17.5, roll, rows)
+        a, b = image_plane_grid(13, 11, 17.5, roll, rows=rows)
         assert np.array_equal(a, alpha[rows[0]:rows[1]])
         assert np.array_equal(b, beta[rows[0]:rows[1]])
 

@@ -13,8 +13,7 @@ from pathlib import Path
 import pytest
 import yaml
 
-import render.points
-from render.cli import EXIT_BAD_INPUT, main
+from render.cli import EXIT_BAD_INPUT
 from render.scene import (
     KEYS,
     MAX_SCENE_BYTES,
