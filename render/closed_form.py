@@ -652,6 +652,7 @@ def closed_form_bundle(alpha, beta, bundle, spin, inclination_deg, *, n_record,
         n_crossings, steps (all 0), theta_end, phi_end.
     """
     from .camera import _polar_position
+    from .geodesics import deferred_interrupts
     from .points import CAPTURE_MARGIN
     from .spacetime import horizon_radii
 
@@ -667,10 +668,13 @@ def closed_form_bundle(alpha, beta, bundle, spin, inclination_deg, *, n_record,
     total = alpha.size
     for start in range(0, max(total, 1), chunk_rays):
         stop = min(start + chunk_rays, total)
-        arrays = closed_form_crossings(
-            alpha[start:stop], beta[start:stop], phi_o[start:stop], float(spin), float(sin_o),
-            float(cos_o), float(r_capture), int(max_crossings), int(n_record),
-            bool(stop_on_disk), float(r_in), float(r_out), bool(want_end))
+        # Like the integrator: Ctrl-C is held back during the parallel kernel call
+        # (a signal inside it can crash the process) and raised after it.
+        with deferred_interrupts():
+            arrays = closed_form_crossings(
+                alpha[start:stop], beta[start:stop], phi_o[start:stop], float(spin),
+                float(sin_o), float(cos_o), float(r_capture), int(max_crossings),
+                int(n_record), bool(stop_on_disk), float(r_in), float(r_out), bool(want_end))
         for name, array in zip(names, arrays):
             parts[name].append(array)
         if progress is not None:

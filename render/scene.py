@@ -502,12 +502,6 @@ def _check_animation(values, inner):
                   f"{values['disk.outer_radius']:.6g} M")
 
 
-def estimated_bytes(pixels, orders):
-    """Peak bytes held per still: ray states and per-order maps (8-byte floats)."""
-    per_pixel = 8 * (6 + 4) + orders * (8 * 6 + 2) + 32
-    return pixels * per_pixel
-
-
 def scene_from_dict(document, source="<dict>", default_name="scene"):
     """Validate a nested mapping (as read from YAML) and return a :class:`Scene`."""
     if document is None:
