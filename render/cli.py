@@ -140,6 +140,8 @@ def _still(args):
               f"{meta['total_seconds']:.2f} s (spin {scene.spin:g}, inclination "
               f"{scene['observer.inclination']:g} deg, ISCO {meta['isco']:.4f} M); pixels: {counts}")
         observed = meta.get("observing", {})
+        for warning in observed.get("warnings", ()):
+            print(f"nullray: warning: {warning}", file=sys.stderr)
         if "total_flux_jy" in observed:
             print(f"total flux density {observed['total_flux_jy']:.4g} Jy at "
                   f"{observed['frequency_hz']:.4g} Hz; pixel {observed['pixel_scale']:.4g} "

@@ -185,6 +185,20 @@ def _summed(values, hits):
     return np.nan_to_num(values, nan=0.0).sum(axis=1)
 
 
+def disk_reaches_border(hits, height, width):
+    """Whether any crossing that shines lies in the outermost ring of pixels.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> hits = np.zeros((9, 1), dtype=bool); hits[4] = True   # the centre of 3 x 3
+    >>> disk_reaches_border(hits, 3, 3)
+    False
+    """
+    grid = np.asarray(hits).reshape(height, width, -1).any(axis=2)
+    return bool(grid[0].any() or grid[-1].any() or grid[:, 0].any() or grid[:, -1].any())
+
+
 def shade(obs, scene, raw, g, hits, bundle):
     """Shade the crossings of a traced bundle for the prepared observation.
 
@@ -234,7 +248,15 @@ def shade(obs, scene, raw, g, hits, bundle):
         pixels, colour_products, colour_info = _true_colour(obs, scene, r, g, weight, hits)
         products.update(colour_products)
         info.update(colour_info)
-    elif obs.mode == "spectrum":
+    if obs.mode in ("spectrum", "line"):
+        # These modes always see the whole image (they are never tiled): a disk
+        # that reaches the border is cropped, and the totals miss what lies outside.
+        cropped = disk_reaches_border(hits, scene["image.height"], scene["image.width"])
+        if cropped:
+            info.setdefault("warnings", []).append(
+                f"the disk reaches the image border: the {obs.mode} counts only what the "
+                "field of view contains (widen observer.field_of_view)")
+    if obs.mode == "spectrum":
         tables["spectrum"] = disk_spectrum(obs, scene, r, g, weight, hits)
         info["spectrum_total_jy"] = {
             "relativistic_peak": float(tables["spectrum"]["flux_relativistic_jy"].max()),

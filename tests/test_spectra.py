@@ -142,3 +142,13 @@ def test_pixel_spread_smooths_the_line_profile(small_scene):
         return np.abs(np.diff(counts, 2)).sum()
 
     assert roughness(smooth["counts"]) < 0.5 * roughness(plain["counts"])
+
+
+@pytest.mark.parametrize("field_of_view, cropped", [(12.0, True), (60.0, False)])
+def test_line_mode_warns_when_the_disk_is_cropped(small_scene, field_of_view, cropped):
+    # A disk to 20 M seen at 60 deg spans about 40 M across (geometry: 2 r_out; common
+    # practice), so a 12 M field of view crops it and a 60 M one holds all of it.
+    scene = small_scene(**{"observing.mode": "line", "observer.field_of_view": field_of_view,
+                           "image.width": 32, "image.height": 32})
+    warnings = render_still(scene).metadata["observing"].get("warnings", [])
+    assert any("image border" in w for w in warnings) == cropped
