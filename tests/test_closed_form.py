@@ -138,7 +138,7 @@ def _periastron(b):
 def _darwin_deflection(b):
     # Darwin (1959), Proc. R. Soc. A 249, 180: Q^2 = (r0 - 2)(r0 + 6),
     # k^2 = (Q - r0 + 6)/(2Q), sin^2 chi = (Q - r0 + 2)/(Q - r0 + 6),
-    # delta = 4 sqrt(r0/Q) [K(k) - F(chi, k)] - pi (the transcription is checked against
+    # delta = 4 sqrt(r0/Q) [K(k) - F(chi, k)] - pi (the formula as coded here is checked against
     # quadrature in tests/test_geodesics.py).
     r0 = _periastron(b)
     q = math.sqrt((r0 - 2.0) * (r0 + 6.0))

@@ -95,8 +95,8 @@ IMPACT_SAMPLE = [5.25, 5.3, 5.5, 6.0, 8.0, 12.0, 30.0, 100.0, 1e3, 1e4]
 
 
 @pytest.mark.parametrize("b", IMPACT_SAMPLE)
-def test_darwin_formula_transcription_matches_quadrature(b):
-    # Guards the transcription of Darwin (1959) above: the two independent evaluations
+def test_darwin_formula_as_coded_matches_quadrature(b):
+    # Guards the coding of Darwin (1959) above: the two independent evaluations
     # (elliptic integrals vs adaptive quadrature) agree to 1e-10 rad (both ~1e-12 exact).
     assert b * b == pytest.approx(periastron(b) ** 3 / (periastron(b) - 2.0), rel=1e-13)
     assert darwin_deflection(b) == pytest.approx(quadrature_deflection(b), abs=1e-10)
