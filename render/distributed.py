@@ -162,12 +162,7 @@ def frame_results(jobs, workers=1, client=None):
         threads = _dask_threads(client)
         futures = [client.submit(_dask_task, job, threads, pure=False,
                                  key=f"nullray-frame-{job.index}-{id(jobs)}") for job in jobs]
-        try:
-            for future in futures:
-                yield future.result()
-        finally:
-            for future in futures:
-                future.cancel()
+        yield from _results_in_order(futures)
         return
     if workers <= 1:
         for job in jobs:
@@ -190,12 +185,17 @@ def frame_results(jobs, workers=1, client=None):
     with ProcessPoolExecutor(max_workers=int(workers), mp_context=context,
                              initializer=_pool_init, initargs=(os.getpid(),)) as pool:
         futures = [pool.submit(render_frame, job, threads) for job in jobs]
-        try:
-            for future in futures:
-                yield future.result()
-        finally:
-            for future in futures:
-                future.cancel()
+        yield from _results_in_order(futures)
+
+
+def _results_in_order(futures):
+    """Yield the futures' results in submission order; cancel the rest if stopped early."""
+    try:
+        for future in futures:
+            yield future.result()
+    finally:
+        for future in futures:
+            future.cancel()
 
 
 def _still_band_task(scene, rows, threads):
