@@ -126,3 +126,51 @@ def test_jacobi_inverts_first_kind():
         sn, cn, dn = elliptic.ellipj(sp.ellipkinc(phi, m), m)
         assert abs(sn - math.sin(phi)) <= TOL and abs(cn - math.cos(phi)) <= TOL
         assert abs(dn - math.sqrt(1.0 - m * math.sin(phi) ** 2)) <= TOL
+
+
+def test_shared_duplication_sets_against_scipy():
+    # The families that share one duplication of x, y, z against scipy.special's
+    # separate R_F, R_D, R_J (same tolerance as the single functions above).
+    for x, y, z, p1, p2, p3 in _args(800, 6, 6.0):
+        rd, j1, j2, j3 = elliptic.elliprd_rj3(x, y, z, p1, p2, p3)
+        for ours, theirs in ((rd, sp.elliprd(x, y, z)), (j1, sp.elliprj(x, y, z, p1)),
+                             (j2, sp.elliprj(x, y, z, p2)), (j3, sp.elliprj(x, y, z, p3))):
+            assert abs(ours / theirs - 1.0) <= TOL, (x, y, z, p1, p2, p3)
+        rf, rd, rj = elliptic.elliprf_rd_rj(x, y, z, p1)
+        for ours, theirs in ((rf, sp.elliprf(x, y, z)), (rd, sp.elliprd(x, y, z)),
+                             (rj, sp.elliprj(x, y, z, p1))):
+            assert abs(ours / theirs - 1.0) <= TOL, (x, y, z, p1)
+    # A zero argument (the complete integrals) is allowed in x.
+    for y, p in 10.0 ** RNG.uniform(-3, 2, size=(200, 2)):
+        rf, rd, rj = elliptic.elliprf_rd_rj(0.0, y, 1.0, p)
+        assert abs(rf / sp.elliprf(0.0, y, 1.0) - 1.0) <= TOL
+        assert abs(rd / sp.elliprd(0.0, y, 1.0) - 1.0) <= TOL
+        assert abs(rj / sp.elliprj(0.0, y, 1.0, p) - 1.0) <= TOL
+
+
+@pytest.mark.parametrize("band", ["moderate", "near_one", "very_near_one", "negative"])
+def test_jacobi_by_doubling_against_mpmath(band):
+    # The halving-doubling Jacobi functions over |u| < 2K (the range the closed form
+    # uses) against mpmath's at 30 digits.  1e-13 absolute, as for ellipj; near
+    # m = 1 scipy's ellipj is itself only ~1e-9 accurate, hence mpmath.
+    mpmath.mp.dps = 30
+    count = 60
+    if band == "moderate":
+        ms = RNG.uniform(0.0, 0.99, count)
+    elif band == "near_one":
+        ms = 1.0 - 10.0 ** RNG.uniform(-8, -2, count)
+    elif band == "very_near_one":
+        ms = 1.0 - 10.0 ** RNG.uniform(-16, -8, count)
+    else:
+        ms = -(10.0 ** RNG.uniform(-3, 1.7, count))
+    for m in ms:
+        quarter = float(mpmath.ellipk(m))
+        for u in RNG.uniform(-1.999, 1.999, 3) * quarter:
+            ours = elliptic.ellipj_doubling(u, m, quarter)
+            for value, name in zip(ours, ("sn", "cn", "dn")):
+                exact = float(mpmath.re(mpmath.ellipfun(name, mpmath.mpf(u), m=mpmath.mpf(m))))
+                assert abs(value - exact) <= TOL, (name, u, m)
+            if abs(u) <= quarter:
+                # Within K no reflection is needed (quarter = 0 means "|u| <= K").
+                assert np.allclose(elliptic.ellipj_doubling(u, m, 0.0), ours, rtol=0,
+                                   atol=TOL)
