@@ -32,8 +32,10 @@ IEC 61966-2-1:1999, sRGB.
 """
 
 import functools
+import math
 
 import numpy as np
+from numba import njit, prange
 
 from .thermal import cgs
 
@@ -171,13 +173,67 @@ def blackbody_xyz(temperature):
     ndarray, shape temperature.shape + (3,)
     """
     t = np.asarray(temperature, dtype=float)
-    table = blackbody_xyz_table()
-    log_t = np.log(np.where(t > 0, t, 1.0))
-    clipped = np.clip(log_t, table[0, 0], table[-1, 0])
     out = np.empty(t.shape + (3,))
-    for i in range(3):
-        out[..., i] = np.exp(np.interp(clipped, table[:, 0], table[:, i + 1]))
-    hot = log_t > table[-1, 0]
-    out[hot] *= np.exp(log_t[hot] - table[-1, 0])[:, None]
-    out[~(t >= T_TABLE_MIN)] = 0.0   # also NaN
+    flat = np.ascontiguousarray(t.reshape(-1, 1))
+    _blackbody_xyz_kernel(flat, np.ones_like(flat), blackbody_xyz_table(), T_TABLE_MIN,
+                          out.reshape(-1, 3))
     return out
+
+
+def blackbody_xyz_sum(temperature, weight):
+    """sum_k weight[i, k] * XYZ(temperature[i, k]): the light of several images in one pixel.
+
+    Parameters
+    ----------
+    temperature, weight : array_like, shape (N, K)
+        Temperatures in K (as :func:`blackbody_xyz`) and their weights; a NaN
+        weight counts as 0.
+
+    Returns
+    -------
+    ndarray, shape (N, 3)
+    """
+    t = np.ascontiguousarray(temperature, dtype=float)
+    w = np.ascontiguousarray(weight, dtype=float)
+    out = np.empty((t.shape[0], 3))
+    _blackbody_xyz_kernel(t, w, blackbody_xyz_table(), T_TABLE_MIN, out)
+    return out
+
+
+@njit(cache=True, parallel=True, error_model="numpy")
+def _blackbody_xyz_kernel(t, weight, table, t_min, out):
+    """out[i] = sum_k weight[i, k] XYZ(t[i, k]) by linear interpolation of log XYZ in log T.
+
+    As numpy.interp on the table's nodes; the table is uniform in log T up to
+    rounding, so the node is found from the step and then checked against its
+    neighbours.
+    """
+    n = table.shape[0]
+    first = table[0, 0]
+    last = table[n - 1, 0]
+    step = (last - first) / (n - 1)
+    for i in prange(t.shape[0]):
+        x_sum = 0.0
+        y_sum = 0.0
+        z_sum = 0.0
+        for k in range(t.shape[1]):
+            ti = t[i, k]
+            wk = weight[i, k]
+            if not ti >= t_min or wk != wk:   # NaN or too cold to see
+                continue
+            log_t = math.log(ti)
+            clipped = min(log_t, last)
+            j = min(max(int((clipped - first) / step), 0), n - 2)
+            while j > 0 and clipped < table[j, 0]:
+                j -= 1
+            while j < n - 2 and clipped > table[j + 1, 0]:
+                j += 1
+            u = (clipped - table[j, 0]) / (table[j + 1, 0] - table[j, 0])
+            # Above the table, the Rayleigh-Jeans scaling X ~ T.
+            scale = wk * (math.exp(log_t - last) if log_t > last else 1.0)
+            x_sum += scale * math.exp(table[j, 1] + u * (table[j + 1, 1] - table[j, 1]))
+            y_sum += scale * math.exp(table[j, 2] + u * (table[j + 1, 2] - table[j, 2]))
+            z_sum += scale * math.exp(table[j, 3] + u * (table[j + 1, 3] - table[j, 3]))
+        out[i, 0] = x_sum
+        out[i, 1] = y_sum
+        out[i, 2] = z_sum

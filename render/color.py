@@ -11,6 +11,7 @@ edge.  The display value is then encoded with the sRGB transfer function
 """
 
 import numpy as np
+from numba import njit, prange
 
 __all__ = ["tone_map", "srgb_encode", "to_uint8", "to_uint16", "xyz_to_linear_srgb",
            "desaturate_into_gamut", "expose_true_colour", "automatic_reference_luminance"]
@@ -41,8 +42,17 @@ def srgb_encode(linear):
     >>> round(float(srgb_encode(0.5)), 4)
     0.7354
     """
-    v = np.clip(np.asarray(linear, dtype=float), 0.0, 1.0)
-    return np.where(v <= 0.0031308, 12.92 * v, 1.055 * v ** (1.0 / 2.4) - 0.055)
+    v = np.asarray(linear, dtype=float)
+    out = np.empty(v.shape)
+    _srgb_kernel(np.ascontiguousarray(v.ravel()), out.reshape(-1))
+    return out
+
+
+@njit(cache=True, parallel=True, error_model="numpy")
+def _srgb_kernel(v, out):
+    for i in prange(v.size):
+        x = min(max(v[i], 0.0), 1.0)   # NaN -> 0 (max(NaN, 0) is 0 here)
+        out[i] = 12.92 * x if x <= 0.0031308 else 1.055 * x ** (1.0 / 2.4) - 0.055
 
 
 def to_uint8(encoded):
@@ -61,7 +71,20 @@ def xyz_to_linear_srgb(xyz):
     """
     from .cie import xyz_to_linear_srgb_matrix
 
-    return np.asarray(xyz, dtype=float) @ xyz_to_linear_srgb_matrix().T
+    xyz = np.asarray(xyz, dtype=float)
+    out = np.empty(xyz.shape)
+    _matrix_kernel(np.ascontiguousarray(xyz.reshape(-1, 3)), xyz_to_linear_srgb_matrix(),
+                   out.reshape(-1, 3))
+    return out
+
+
+@njit(cache=True, parallel=True)
+def _matrix_kernel(v, matrix, out):
+    """out[i] = matrix @ v[i] for 3-vectors (a loop, not BLAS: no thread pool of its own)."""
+    for i in prange(v.shape[0]):
+        for row in range(3):
+            out[i, row] = (matrix[row, 0] * v[i, 0] + matrix[row, 1] * v[i, 1]
+                           + matrix[row, 2] * v[i, 2])
 
 
 def desaturate_into_gamut(rgb):
@@ -72,14 +95,38 @@ def desaturate_into_gamut(rgb):
     where Y = 0.2126 R + 0.7152 G + 0.0722 B (IEC 61966-2-1) is kept: hue is
     kept, saturation reduced.  In-gamut pixels are unchanged.
     """
-    rgb = np.nan_to_num(np.asarray(rgb, dtype=float), nan=0.0)
-    luminance = np.maximum(rgb @ np.array([0.2126, 0.7152, 0.0722]), 0.0)[..., None]
-    low = rgb.min(axis=-1, keepdims=True)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        s = np.where(low < 0.0, luminance / (luminance - low), 1.0)
-    s = np.clip(np.nan_to_num(s, nan=0.0), 0.0, 1.0)
-    mixed = np.maximum(luminance + s * (rgb - luminance), 0.0)
-    return np.where(low < 0.0, mixed, rgb)
+    rgb = np.asarray(rgb, dtype=float)
+    out = np.empty(rgb.shape)
+    _gamut_kernel(np.ascontiguousarray(rgb.reshape(-1, 3)), 1.0, False, out.reshape(-1, 3))
+    return out
+
+
+@njit(cache=True, parallel=True, error_model="numpy")
+def _gamut_kernel(rgb, scale, limit, out):
+    """Per pixel: NaN -> 0, desaturate into gamut, times ``scale``; if ``limit``, top <= 1."""
+    for i in prange(rgb.shape[0]):
+        r = rgb[i, 0] if rgb[i, 0] == rgb[i, 0] else 0.0
+        g = rgb[i, 1] if rgb[i, 1] == rgb[i, 1] else 0.0
+        b = rgb[i, 2] if rgb[i, 2] == rgb[i, 2] else 0.0
+        low = min(r, g, b)
+        if low < 0.0:
+            luminance = max(0.2126 * r + 0.7152 * g + 0.0722 * b, 0.0)
+            s = luminance / (luminance - low)
+            s = min(max(s, 0.0), 1.0) if s == s else 0.0
+            r = max(luminance + s * (r - luminance), 0.0)
+            g = max(luminance + s * (g - luminance), 0.0)
+            b = max(luminance + s * (b - luminance), 0.0)
+        r *= scale
+        g *= scale
+        b *= scale
+        top = max(r, g, b)
+        if limit and top > 1.0:
+            r /= top
+            g /= top
+            b /= top
+        out[i, 0] = r
+        out[i, 1] = g
+        out[i, 2] = b
 
 
 def expose_true_colour(xyz, reference_y, exposure=1.0):
@@ -91,9 +138,16 @@ def expose_true_colour(xyz, reference_y, exposure=1.0):
     largest channel exceeds 1 is scaled down as a whole (hue and saturation
     kept; it shows at the brightest displayable level of its colour).
     """
-    rgb = desaturate_into_gamut(xyz_to_linear_srgb(xyz)) * (exposure / reference_y)
-    top = rgb.max(axis=-1, keepdims=True)
-    return np.where(top > 1.0, rgb / np.where(top > 1.0, top, 1.0), rgb)
+    return expose_linear_srgb(xyz_to_linear_srgb(xyz), reference_y, exposure)
+
+
+def expose_linear_srgb(rgb, reference_y, exposure=1.0):
+    """:func:`expose_true_colour` from linear sRGB (in gamut or not) instead of XYZ."""
+    rgb = np.asarray(rgb, dtype=float)
+    out = np.empty(rgb.shape)
+    _gamut_kernel(np.ascontiguousarray(rgb.reshape(-1, 3)), float(exposure / reference_y), True,
+                  out.reshape(-1, 3))
+    return out
 
 
 def automatic_reference_luminance(y, percentile=99.5):

@@ -33,7 +33,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .color import (automatic_reference_luminance, desaturate_into_gamut, expose_true_colour,
+from .color import (automatic_reference_luminance, desaturate_into_gamut, expose_linear_srgb,
                     srgb_encode, to_uint8, to_uint16, tone_map, xyz_to_linear_srgb)
 from .emission import (EmissionTableError, NovikovThorne, PowerLaw, RadialProfile,
                        emission_cosine, limb_darkening, observed_bolometric)
@@ -293,12 +293,11 @@ def _add_flux(scene, intensity, products, info):
 
 def colour_xyz(law, r, g, weight):
     """XYZ (N, 3) of the observed colour-corrected blackbody light, summed over orders."""
-    from .cie import blackbody_xyz
+    from .cie import blackbody_xyz_sum
 
-    t_obs = np.nan_to_num(g * law.colour_temperature(r), nan=0.0)
+    t_obs = g * law.colour_temperature(r)
     dilution = law.colour_correction ** -4
-    xyz = blackbody_xyz(t_obs) * (np.nan_to_num(weight) * dilution)[..., None]
-    return xyz.sum(axis=1)
+    return blackbody_xyz_sum(t_obs, np.broadcast_to(weight, t_obs.shape) * dilution)
 
 
 def _true_colour(obs, scene, r, g, weight, hits):
@@ -307,11 +306,11 @@ def _true_colour(obs, scene, r, g, weight, hits):
         reference = float(scene["observing.colour_reference"])
     else:
         reference = automatic_reference_luminance(xyz[:, 1])
-    display = expose_true_colour(xyz, reference, scene["output.exposure"])
-    encoded = srgb_encode(display)
+    rgb = desaturate_into_gamut(xyz_to_linear_srgb(xyz))
+    encoded = srgb_encode(expose_linear_srgb(rgb, reference, scene["output.exposure"]))
     products = {
         "xyz": xyz.astype(np.float32),
-        "rgb_linear": desaturate_into_gamut(xyz_to_linear_srgb(xyz)).astype(np.float32),
+        "rgb_linear": rgb.astype(np.float32),
         "pixels16": to_uint16(encoded),
     }
     info = {"colour_reference_y": reference, "colour_exposure": scene["observing.colour_exposure"],

@@ -31,8 +31,10 @@ Shimura & Takahara (1995), ApJ 445, 780.
 """
 
 import functools
+import math
 
 import numpy as np
+from numba import njit, prange
 
 from .spacetime import check_spin, circular_orbit_energy, isco_radius
 
@@ -143,22 +145,34 @@ def page_thorne_flux_geometric(r, spin):
     """
     a = check_spin(spin)
     r = np.asarray(r, dtype=float)
-    r_isco = isco_radius(a)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        x = np.sqrt(np.maximum(r, r_isco))
-        x0 = np.sqrt(r_isco)
-        bracket = x - x0 - 1.5 * a * np.log(x / x0)
-        roots = _cubic_roots(a)
-        for i, xi in enumerate(roots):
-            others = [roots[j] for j in range(3) if j != i]
-            coefficient = 3.0 * (xi - a) ** 2 / (xi * (xi - others[0]) * (xi - others[1]))
-            bracket = bracket - coefficient * np.log((x - xi) / (x0 - xi))
-        f = 1.5 / (x * x * (x ** 3 - 3.0 * x + 2.0 * a)) * bracket
-        flux = f / (4.0 * np.pi * x * x)
-    # Round-off can leave -1e-17 just outside the ISCO; no torque means zero there.
-    flux = np.where(r > r_isco, np.maximum(flux, 0.0), 0.0)
-    flux = np.where(np.isnan(r), np.nan, flux)
+    r_isco = float(isco_radius(a))
+    roots = _cubic_roots(a)
+    coefficients = np.array([
+        3.0 * (xi - a) ** 2 / (xi * np.prod([xi - xj for j, xj in enumerate(roots) if j != i]))
+        for i, xi in enumerate(roots)])
+    flux = np.empty(r.size)
+    _page_thorne_kernel(np.ascontiguousarray(r.ravel()), a, r_isco,
+                        np.array(roots, dtype=float), coefficients, flux)
+    flux = flux.reshape(r.shape)
     return float(flux) if flux.ndim == 0 else flux
+
+
+@njit(cache=True, parallel=True, error_model="numpy")
+def _page_thorne_kernel(r, a, r_isco, roots, coefficients, out):
+    """Page & Thorne (1974) eq. 15n at each radius (0 inside the ISCO, NaN for NaN)."""
+    x0 = math.sqrt(r_isco)
+    for i in prange(r.size):
+        ri = r[i]
+        if not ri > r_isco:
+            out[i] = np.nan if ri != ri else 0.0
+            continue
+        x = math.sqrt(ri)
+        bracket = x - x0 - 1.5 * a * math.log(x / x0)
+        for j in range(3):
+            bracket -= coefficients[j] * math.log((x - roots[j]) / (x0 - roots[j]))
+        f = 1.5 / (x * x * (x * x * x - 3.0 * x + 2.0 * a)) * bracket
+        # Round-off can leave -1e-17 just outside the ISCO; no torque means zero there.
+        out[i] = max(f / (4.0 * math.pi * x * x), 0.0)
 
 
 def page_thorne_flux(r, spin, mass_msun, accretion_rate_g_s):
