@@ -95,7 +95,7 @@ def observer_rays(scene, rows=None, velocity=None):
     return alpha, beta, bundle
 
 
-def render_still(scene, progress=None, *, memory_budget=None, workdir=None):
+def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps=None):
     """Render a validated :class:`~render.scene.Scene` and return a :class:`StillResult`.
 
     ``progress(done, total)`` is called as rays finish (e.g. a
@@ -111,19 +111,26 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None):
     A still larger than ``tracing.memory_budget`` (or ``memory_budget``, in
     bytes) is rendered in bands of rows whose arrays go to temporary files in
     ``workdir`` (see :mod:`render.tiling`); call ``result.release()`` when done.
+
+    ``maps`` asks for the ``phi`` and ``delay`` maps; by default (None) they are
+    computed when the scene writes its data maps (``output.npz``).  The integrator
+    produces them anyway; the closed form (``tracing.method``) skips them when they
+    are not asked for, and they are then NaN.  The image needs neither.
     """
+    if maps is None:
+        maps = bool(scene["output.npz"])
     plan = plan_still(scene, memory_budget)
     # Emission law and observing mode first: a bad profile table fails before any tracing.
     observation = prepare_observation(scene)
     if plan.tiles == 1:
-        return _render_band(scene, observation, None, progress)
+        return _render_band(scene, observation, None, progress, maps)
     return render_in_tiles(
         scene, plan, lambda rows, band_progress: _render_band(scene, observation, rows,
-                                                              band_progress),
+                                                              band_progress, maps),
         workdir=workdir, progress=progress)
 
 
-def _render_band(scene, observation, rows, progress):
+def _render_band(scene, observation, rows, progress, maps=True):
     """Render the image rows ``rows = (start, stop)`` (all rows if None) as a StillResult."""
     started = time.perf_counter()
     width, height = scene["image.width"], scene["image.height"]
@@ -139,7 +146,7 @@ def _render_band(scene, observation, rows, progress):
         raw = closed_form_bundle(alpha, beta, bundle, spin, scene["observer.inclination"],
                                  n_record=orders, max_crossings=scene["tracing.max_crossings"],
                                  stop_on_disk=opaque, r_in=r_in, r_out=r_out,
-                                 want_end=False, progress=progress)
+                                 want_end=False, want_maps=maps, progress=progress)
     else:
         raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
                            max_steps=scene["tracing.max_steps"],
@@ -163,6 +170,8 @@ def _render_band(scene, observation, rows, progress):
         return a.reshape((height, width) + a.shape[1:])
 
     def stack(a):
+        if a.strides == (0, 0):   # a map the closed form skipped: all NaN, no memory
+            return np.broadcast_to(np.nan, (orders, height, width))
         return np.ascontiguousarray(np.moveaxis(a, 1, 0).reshape(orders, height, width))
 
     fate = image(raw["fate"])
@@ -188,6 +197,8 @@ def _render_band(scene, observation, rows, progress):
         "unresolved_negative_energy": int(np.count_nonzero(
             ~(np.broadcast_to(bundle.energy_ratio, (bundle.lam.size,)) > 0.0))),
         "tracing_method": method,
+        # False when the closed form skipped the phi and delay maps (then NaN).
+        "phi_delay_maps": bool(maps or method == "integrate"),
         "steps_mean": float(raw["steps"].mean()),
         "observing": shaded.info,
         "trace_seconds": traced - started, "total_seconds": time.perf_counter() - started,

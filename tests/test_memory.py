@@ -127,11 +127,11 @@ def test_interrupted_tiled_render_leaves_no_temporary_files(tmp_path, monkeypatc
     original = render.still._render_band
     calls = []
 
-    def interrupt_third(scene, observation, rows, progress):
+    def interrupt_third(scene, observation, rows, progress, *rest):
         calls.append(rows)
         if len(calls) == 3:
             raise KeyboardInterrupt
-        return original(scene, observation, rows, progress)
+        return original(scene, observation, rows, progress, *rest)
 
     monkeypatch.setattr(render.still, "_render_band", interrupt_third)
     with pytest.raises(KeyboardInterrupt):
