@@ -78,7 +78,8 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from .elliptic import elliprf, elliprf_rd_rj, elliprj, ellipj_doubling, ellipj_work
+from .elliptic import (FAST_ARITHMETIC, elliprf, elliprf_rd_rj, elliprj, ellipj_doubling,
+                       ellipj_work)
 from .radial_integrals import complex_time, real_time
 from .geodesics import FATE_CAPTURED, FATE_DISK, FATE_ESCAPED, FATE_UNRESOLVED
 
@@ -93,7 +94,7 @@ CLASS_COMPLEX = 4   # r3, r4 complex: captured
 _SCRATCH = 32   # two AGM level arrays for the Jacobi functions
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def radial_roots(spin, lam, eta):
     """Roots of the radial potential R(r); returns (r1, r2, r3, r4, im34, are_34_real).
 
@@ -159,7 +160,7 @@ def radial_roots(spin, lam, eta):
     return r1, r2, z, z, math.sqrt(-d34), False
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=FAST_ARITHMETIC)
 def _u_from_jacobi(cls, sn, cn, c_a, c_b, c_c, c_d):
     """u = 1/r from sn or cn of the elliptic argument (no division by zero at r = infinity)."""
     if cls == CLASS_COMPLEX:
@@ -181,7 +182,7 @@ def _radial_parts(cls, x, s, c, d, r, k, n, r1, r2, r3, r4, big_a, big_b, c_a, c
                      dsigma_dx, at_infinity)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
              max_crossings, n_record, stop_on_disk, r_in, r_out, want_end, want_maps,
              out_r, out_phi, out_delay, out_inward, row, scratch):

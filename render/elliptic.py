@@ -36,6 +36,11 @@ __all__ = ["elliprf", "elliprd", "elliprj", "elliprc", "ellipk", "ellipf", "elli
            "ellipd", "ellippi", "ellipj", "ellipj_work", "ellipj_doubling",
            "elliprd_rj3", "elliprf_rd_rj"]
 
+# Floating-point contraction (FMA), reciprocal multiplication and sign-of-zero freedom
+# in the elliptic kernels (and those built on them): ~15% faster, results unchanged
+# to ~1e-15 (the tests hold them to 1e-13).  Not "nnan"/"ninf": NaN and inf carry meaning.
+FAST_ARITHMETIC = {"contract", "arcp", "nsz"}
+
 # Duplication stops once the spread of the arguments about their mean is below
 # this fraction (Carlson 1995, eq. 2.2 with r = 1e-16: the truncation error of the
 # fifth-order expansion is then below 1e-16 relative).
@@ -47,7 +52,7 @@ _Q_RD = (0.25 * _STOP) ** (-1.0 / 6.0)
 _AGM_LEVELS = 16
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def elliprf(x, y, z):
     """Carlson's R_F(x, y, z) for x, y, z >= 0 (at most one zero); Carlson 1995, sec. 2."""
     a0 = (x + y + z) / 3.0
@@ -71,7 +76,7 @@ def elliprf(x, y, z):
     return (1.0 - e2 / 10.0 + e3 / 14.0 + e2 * e2 / 24.0 - 3.0 * e2 * e3 / 44.0) / math.sqrt(a)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def elliprd(x, y, z):
     """Carlson's R_D(x, y, z) for x, y >= 0 (at most one zero), z > 0; Carlson 1995, sec. 2."""
     a0 = (x + y + 3.0 * z) / 5.0
@@ -92,7 +97,7 @@ def elliprd(x, y, z):
     return _rd_series(x, y, a0, a, f) + 3.0 * total
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def _rc_one(e):
     """R_C(1, 1 + e) for e > -1, by its closed forms (Carlson 1995, eq. 2.12) or a series."""
     if abs(e) < 1e-4:
@@ -105,7 +110,7 @@ def _rc_one(e):
     return math.atanh(s) / s
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def elliprc(x, y):
     """Carlson's degenerate R_C(x, y) = R_F(x, y, y) for x >= 0, y > 0 (Carlson 1995, eq. 2.12)."""
     if x < y:
@@ -118,7 +123,7 @@ def elliprc(x, y):
     return 1.0 / math.sqrt(x)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def elliprj(x, y, z, p):
     """Carlson's R_J(x, y, z, p) for x, y, z >= 0 (at most one zero), p > 0; Carlson 1995, sec. 2."""
     a0 = (x + y + z + 2.0 * p) / 5.0
@@ -145,20 +150,20 @@ def elliprj(x, y, z, p):
     return _rj_series(x, y, z, a0, a, f) + 6.0 * total
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def ellipk(m):
     """Complete integral of the first kind K(m) = R_F(0, 1 - m, 1), m < 1."""
     return elliprf(0.0, 1.0 - m, 1.0)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def _reduce(phi):
     """Write phi = j pi + r with |r| <= pi/2; return (j, r)."""
     j = math.floor(phi / math.pi + 0.5)
     return j, phi - j * math.pi
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def ellipf(phi, m):
     """Incomplete integral of the first kind F(phi | m) (DLMF 19.25.5), real phi, m < 1.
 
@@ -173,7 +178,7 @@ def ellipf(phi, m):
     return value
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def ellipd(phi, m):
     """D(phi | m) = (F - E)/m = (sin^3 phi / 3) R_D(cos^2 phi, 1 - m sin^2 phi, 1) (DLMF 19.25.13)."""
     j, r = _reduce(phi)
@@ -185,13 +190,13 @@ def ellipd(phi, m):
     return value
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def ellipe(phi, m):
     """Incomplete integral of the second kind E(phi | m) = F - m D (DLMF 19.25.9)."""
     return ellipf(phi, m) - m * ellipd(phi, m)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def ellippi(n, phi, m):
     """Incomplete integral of the third kind Pi(n; phi | m) = int dt / ((1 - n sin^2) sqrt(1 - m sin^2)).
 
@@ -210,7 +215,7 @@ def ellippi(n, phi, m):
     return value
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def ellipj(u, m):
     """Jacobi elliptic functions (sn, cn, dn)(u | m) for real u and m <= 1.
 
@@ -224,7 +229,7 @@ def ellipj(u, m):
     return ellipj_work(u, m, a_buf, c_buf)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def ellipj_work(u, m, a_buf, c_buf):
     """:func:`ellipj` with caller-provided scratch arrays of length >= 16 (no allocation)."""
     if m < 0.0:
@@ -274,7 +279,7 @@ def ellipj_work(u, m, a_buf, c_buf):
     return s, c, math.sqrt(c * c + (1.0 - m) * s * s)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def ellipj_doubling(u, m, quarter):
     """Jacobi (sn, cn, dn)(u | m) by argument halving and doubling, for |u| < 2 K(m), m < 1.
 
@@ -344,7 +349,7 @@ def ellipj_doubling(u, m, quarter):
     return s, c, d
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def elliprd_rj3(x, y, z, p1, p2, p3):
     """R_D(x, y, z) and R_J(x, y, z, p_i) for three p_i > 0, from one duplication of x, y, z.
 
@@ -406,7 +411,7 @@ def elliprd_rj3(x, y, z, p1, p2, p3):
             _rj_series(x, y, z, a0_3, a_3, f) + 6.0 * sum_3)
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=FAST_ARITHMETIC)
 def _rj_series(x, y, z, a0, a, f):
     """The fifth-order series term of R_J after duplication (Carlson 1995, eq. 2.39)."""
     dx = (a0 - x) * f / a
@@ -424,7 +429,7 @@ def _rj_series(x, y, z, a0, a, f):
     return f * series / (a * math.sqrt(a))
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def elliprf_rd_rj(x, y, z, p):
     """R_F(x, y, z), R_D(x, y, z) and R_J(x, y, z, p) from one duplication of x, y, z.
 
@@ -471,7 +476,7 @@ def elliprf_rd_rj(x, y, z, p):
         _rj_series(x, y, z, a0_j, a_j, f) + 6.0 * sum_j
 
 
-@njit(cache=True, inline="always", error_model="numpy")
+@njit(cache=True, inline="always", error_model="numpy", fastmath=FAST_ARITHMETIC)
 def _rd_series(x, y, a0, a, f):
     """The fifth-order series term of R_D after duplication (Carlson 1995, eq. 2.29)."""
     dx = (a0 - x) * f / a

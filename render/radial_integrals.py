@@ -57,14 +57,14 @@ import math
 
 from numba import njit
 
-from .elliptic import elliprd_rj3
+from .elliptic import FAST_ARITHMETIC, elliprd_rj3
 
 __all__ = ["third_kind_set", "real_time", "complex_time"]
 
 
 # --- Legendre's third kind (three characteristics at once) and D, from sn, cn, dn ---
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def third_kind_set(ch1, ch2, ch3, s, c, d, k):
     """(Pi(ch_i; am X | k) - X) / ch_i for three ch_i < 1, and D(am X | k) = int_0^X sn^2.
 
@@ -143,7 +143,7 @@ def _horizon_weights(spin, lam, r_plus, r_minus):
             4.0 + spin * spin - spin * lam)
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def real_time(x, s, c, d, r, k, n, r1, r2, r3, r4, spin, lam, r_plus, r_minus, dsigma_dx,
               at_infinity):
     """Real roots: (Phi, T~) with dPhi/dX = sum A_+- / (r - r_+-) and T~ = t_r(X) + r*(r(X)).
@@ -198,7 +198,7 @@ def _mobius_char(alpha, k):
     return nn if a2 < 1.0 else k / nn
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def _mobius_integral(p, q, alpha, x, s, c, d, k, v, at_pole, log_pole):
     """int_0^X (p + q cn) / (1 + alpha cn) dX' for X in (0, 2K), given v = (Pi - X)/ch.
 
@@ -243,7 +243,7 @@ def _mobius_integral(p, q, alpha, x, s, c, d, k, v, at_pole, log_pole):
     return p * x + (p * a2 - q * alpha) * z + (q - p * alpha) * g
 
 
-@njit(cache=True, error_model="numpy")
+@njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def complex_time(x, s, c, d, r, k, r1, r2, big_a, big_b, c_a, c_b, c_c, c_d, spin, lam,
                  r_plus, r_minus, dsigma_dx, at_infinity):
     """Complex r3, r4: (Phi, T~) as :func:`real_time`, with sigma = dsigma_dx (X_inf - X).
