@@ -232,6 +232,7 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
         negative = 0
         trace_seconds = 0.0
         product_names = None
+        skipped = {}
         for rows in plan.bands():
             done_before = rows[0] * plan.width
 
@@ -243,7 +244,12 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
             if part.tables:
                 raise ValueError("tables cannot be assembled from tiles")
             for name in PIXEL_FIELDS + PER_ORDER_FIELDS:
-                store.write_band(name, getattr(part, name), rows, plan.height)
+                array = getattr(part, name)
+                if array.size and not any(array.strides):
+                    # An all-NaN view (a map the closed form skipped): nothing to store.
+                    skipped[name] = array.shape[0]
+                    continue
+                store.write_band(name, array, rows, plan.height)
             for name, array in part.products.items():
                 store.write_band(f"product.{name}", array, rows, plan.height)
             if product_names is None:
@@ -271,7 +277,9 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
                   "estimated_untiled_gb": plan.whole_bytes / 1e9},
     })
     result = StillResult(
-        **{name: arrays[name] for name in PIXEL_FIELDS + PER_ORDER_FIELDS},
+        **{name: arrays[name] if name in arrays
+           else np.broadcast_to(np.nan, (skipped[name], plan.height, plan.width))
+           for name in PIXEL_FIELDS + PER_ORDER_FIELDS},
         metadata=metadata,
         products={name: arrays[f"product.{name}"] for name in product_names or ()})
     result.storage = store

@@ -198,3 +198,23 @@ def test_8192_square_still_stays_under_the_default_budget(tmp_path):
     assert line["width"] == 8192 and line["tiles"] > 1
     assert line["peak_rss_mb"] * 1e6 < line["memory_budget_gb"] * 1e9
     assert line["files_written"] == ["bench-memory.npz", "bench-memory.png"]
+
+
+def test_tiled_still_without_maps_stores_no_nan_maps(tmp_path):
+    # maps=False with the closed form: phi and delay are NaN views, also when tiled, and
+    # the rest equals the untiled render (tiling is bookkeeping, common practice).
+    scene = small(**{"tracing.method": "closed-form"})
+    whole = render_still(scene, maps=False)
+    tiled = render_still(scene, maps=False, memory_budget=3e5, workdir=tmp_path)
+    try:
+        assert tiled.metadata["tiles"]["count"] > 1
+        folder = next(tmp_path.iterdir())
+        assert (folder / "r.npy").exists() and not (folder / "phi.npy").exists()
+        for result in (whole, tiled):
+            assert np.isnan(result.phi).all() and np.isnan(result.delay).all()
+            assert result.phi.shape == result.r.shape
+            assert not result.metadata["phi_delay_maps"]
+        assert np.array_equal(whole.r, tiled.r, equal_nan=True)
+        assert np.array_equal(whole.pixels, tiled.pixels)
+    finally:
+        tiled.release()
