@@ -26,12 +26,14 @@ Stars are points: each has a direction, a flux and a temperature, and is
 never looked up like a texture.  The lens map (pixel -> sky direction) is made
 piecewise linear on the triangles between neighbouring pixel centres; a star
 inside a sky triangle has an image inside the matching image triangle, at the
-same barycentric coordinates, with magnification
-
-    mu = Omega_image / Omega_sky
-
-(the ratio of the two triangles' solid angles, i.e. 1/|det J| of the lens
-map, Schneider, Ehlers & Falco 1992, sec. 5.1).  Its flux mu F is split
+same barycentric coordinates, with magnification mu = 1/|det J|, J the
+Jacobian of the lens map in solid-angle terms (Schneider, Ehlers & Falco
+1992, sec. 5.1): det J is found per pixel from central differences of the
+neighbouring rays (:func:`inverse_magnification`) and interpolated
+barycentrically to the star (second-order accurate); in a triangle where det
+J changes sign (a fold of the lens map, e.g. on the Einstein ring of an
+aligned star) the triangle's own ratio Omega_image / Omega_sky is used, which
+stays finite.  Its flux mu F is split
 bilinearly over the four pixels of the cell (flux-conserving, sub-pixel
 positioned).  Summed over all triangles this gives every image of every
 star, including the secondary images inside the Einstein ring.  Triangles
@@ -60,7 +62,7 @@ from numba import njit, prange
 
 from .geodesics import FATE_ESCAPED, _trace_one, deferred_interrupts
 
-__all__ = ["SKY_KINDS", "StarField", "escape_directions", "sky_vectors", "load_panorama",
+__all__ = ["SKY_KINDS", "StarField", "inverse_magnification", "escape_directions", "sky_vectors", "load_panorama",
            "sample_panorama", "star_field", "splat_stars", "pixel_solid_angle",
            "camera_vectors", "sample_panorama_image", "SkyImageError",
            "BRIGHTEST_MAGNITUDE", "FAINTEST_MAGNITUDE"]
@@ -411,8 +413,8 @@ def _blackbody_xyz(table, log_t, out):
 
 
 @njit(cache=True, error_model="numpy")
-def _splat_triangle(corner_sky, corner_cam, corner_px, corner_g, stars, flux, log_t, order,
-                    starts, colour, table, out, counts, row, col):
+def _splat_triangle(corner_sky, corner_cam, corner_px, corner_g, corner_det, stars, flux, log_t,
+                    order, starts, colour, table, out, counts, row, col):
     """Add the images of the stars inside one sky triangle; return 1 if it was skipped."""
     a = corner_sky[0]
     b = corner_sky[1]
@@ -428,7 +430,11 @@ def _splat_triangle(corner_sky, corner_cam, corner_px, corner_g, stars, flux, lo
     p = corner_cam
     omega_cam = _solid_angle(p[0, 0], p[0, 1], p[0, 2], p[1, 0], p[1, 1], p[1, 2],
                              p[2, 0], p[2, 1], p[2, 2])
-    mu = omega_cam / omega_sky
+    mu_triangle = omega_cam / omega_sky
+    # Where the lens map does not fold inside the triangle, interpolate the signed
+    # inverse magnification of its corners (second order); else use the triangle's ratio.
+    smooth = ((corner_det[0] > 0.0 and corner_det[1] > 0.0 and corner_det[2] > 0.0)
+              or (corner_det[0] < 0.0 and corner_det[1] < 0.0 and corner_det[2] < 0.0))
     # Bounding box in bins, padded by one bin (edges are great circles).
     t_lo = 1e9
     t_hi = -1e9
@@ -500,6 +506,9 @@ def _splat_triangle(corner_sky, corner_cam, corner_px, corner_g, stars, flux, lo
                 g = la * corner_g[0] + lb * corner_g[1] + lc * corner_g[2]
                 fx = min(max(fx, 0.0), 1.0)
                 fy = min(max(fy, 0.0), 1.0)
+                mu = mu_triangle
+                if smooth:
+                    mu = 1.0 / abs(la * corner_det[0] + lb * corner_det[1] + lc * corner_det[2])
                 amount = flux[m] * mu
                 if colour:
                     # A blackbody at T seen with factor g is one at g T (I_nu/nu^3 invariant);
@@ -524,7 +533,7 @@ def _splat_triangle(corner_sky, corner_cam, corner_px, corner_g, stars, flux, lo
 
 
 @njit(cache=True, parallel=True, error_model="numpy")
-def _splat(sky, cam, g, ok, stars, flux, log_t, order, starts, colour, table, out, counts):
+def _splat(sky, cam, g, det, ok, stars, flux, log_t, order, starts, colour, table, out, counts):
     height, width = ok.shape
     skipped = np.zeros(height, dtype=np.int64)
     # Cell row j writes pixel rows j and j + 1: even and odd rows in two passes never collide.
@@ -538,6 +547,7 @@ def _splat(sky, cam, g, ok, stars, flux, log_t, order, starts, colour, table, ou
             corner_cam = np.empty((3, 3))
             corner_px = np.empty((3, 2))
             corner_g = np.empty(3)
+            corner_det = np.empty(3)
             for i in range(width - 1):
                 if not (ok[j, i] and ok[j, i + 1] and ok[j + 1, i] and ok[j + 1, i + 1]):
                     continue
@@ -556,10 +566,30 @@ def _splat(sky, cam, g, ok, stars, flux, log_t, order, starts, colour, table, ou
                         corner_px[k, 0] = dc
                         corner_px[k, 1] = dr
                         corner_g[k] = g[j + dr, i + dc]
+                        corner_det[k] = det[j + dr, i + dc]
                     skipped[j] += _splat_triangle(corner_sky, corner_cam, corner_px, corner_g,
-                                                  stars, flux, log_t, order, starts, colour,
+                                                  corner_det, stars, flux, log_t, order, starts, colour,
                                                   table, out, counts, j, i)
     return skipped.sum()
+
+
+def inverse_magnification(sky, cam, ok=None):
+    """Signed det of the lens map per pixel: (sky solid angle) / (image solid angle).
+
+    Central differences of neighbouring pixel-centre directions (one-sided at
+    the image border); NaN where a neighbour did not escape.  The sign is the
+    image parity relative to an undeflected view (the camera's (look, right,
+    up) triad is left-handed in sky coordinates, so an undeflected image has
+    det = -1); its magnification is 1 / |det|.
+    """
+    if ok is None:
+        ok = np.all(np.isfinite(sky), axis=-1)
+    s = np.where(ok[..., None], sky, np.nan)
+    s_y, s_x = np.gradient(s, axis=(0, 1))
+    c_y, c_x = np.gradient(np.asarray(cam, dtype=float), axis=(0, 1))
+    sky_area = np.einsum("...i,...i", np.cross(s_x, s_y), s)
+    cam_area = np.einsum("...i,...i", np.cross(c_x, c_y), cam)
+    return sky_area / cam_area
 
 
 def splat_stars(stars, sky, cam, g, colour=False):
@@ -603,10 +633,12 @@ def splat_stars(stars, sky, cam, g, colour=False):
     if len(stars) == 0 or height < 2 or width < 2:
         return out, counts, 0
     order, starts = _bin_stars(stars.directions)
+    det = np.nan_to_num(inverse_magnification(sky, cam, ok), nan=0.0)
     with deferred_interrupts():
         skipped = _splat(np.ascontiguousarray(np.where(ok[..., None], sky, 0.0)),
                          np.ascontiguousarray(cam, dtype=float),
-                         np.ascontiguousarray(np.where(ok, g, 1.0)), ok,
+                         np.ascontiguousarray(np.where(ok, g, 1.0)), np.ascontiguousarray(det),
+                         ok,
                          np.ascontiguousarray(stars.directions, dtype=float),
                          np.ascontiguousarray(stars.flux, dtype=float),
                          np.log(np.ascontiguousarray(stars.temperature, dtype=float)),
