@@ -226,6 +226,9 @@ def plan_sequence(scene):
     if scene["observing.mode"] == "true_colour" and scene["observing.colour_exposure"] != "fixed":
         raise SceneError("a true_colour sequence needs observing.colour_exposure = 'fixed' "
                          "(the same exposure for every frame)")
+    if scene["image.supersampling"] > 1:
+        raise SceneError(f"image.supersampling = {scene['image.supersampling']} is not "
+                         "available in sequences yet; expected 1 (the sky is: sky.kind)")
     tracks = _keyframe_tracks(scene)
     path = scene["animation.camera_path"]
     step = scene["animation.time_step"]
@@ -467,7 +470,7 @@ def _trace(scene, velocity, progress=None):
                        max_crossings=scene["tracing.max_crossings"],
                        stop_on_disk=scene["disk.surface"] == "opaque",
                        r_in=scene.inner_radius, r_out=scene["disk.outer_radius"],
-                       progress=progress)
+                       progress=progress, final_state=scene["sky.kind"] != "none")
     _TRACE_CACHE.clear()
     _TRACE_CACHE[key] = (bundle, raw)
     return bundle, raw
@@ -511,7 +514,17 @@ def render_frame(job, numba_threads=None):
         observation.law = _ModulatedLaw(observation.law, np.where(hits, factor, 1.0))
     shaded = shade(observation, scene, raw, g, hits, bundle)
     height, width = scene["image.height"], scene["image.width"]
-    if observation.mode == "true_colour":
+    if scene["sky.kind"] != "none":
+        # The sky seen from the moving camera's frame (render.sensor), at the sequence's white.
+        from .camera import image_plane_grid
+        from .sensor import finish_still
+
+        alpha, beta = image_plane_grid(width, height, scene["observer.field_of_view"],
+                                       scene["observer.roll"])
+        white = None if observation.mode == "true_colour" else job.white
+        pixels = finish_still(scene, observation, shaded, raw, bundle, alpha, beta, None,
+                              white=white).pixels
+    elif observation.mode == "true_colour":
         pixels = shaded.pixels
     else:
         # One white for the whole sequence (frame 0's), so brightness changes are real.

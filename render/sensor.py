@@ -333,7 +333,8 @@ def _rays_at(scene, x, y, velocity=None):
                        scene["observer.frame"], velocity=velocity)
 
 
-def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, rows=None):
+def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, rows=None,
+                 white=None):
     """Composite sky and disk, supersample, add stars; return the updated Shaded.
 
     Parameters
@@ -350,7 +351,12 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
     trace : callable
         ``trace(x, y, bundle) -> (raw, shaded)``: traces and shades the extra
         rays of image-plane points (x, y) as the centre rays were
-        (:func:`render.still.trace_and_shade`).
+        (:func:`render.still.trace_and_shade`); only used with supersampling.
+    rows : (start, stop), optional
+        A band of rows: refused (a sky and supersampling need neighbouring rows).
+    white : float, optional
+        The exposure's white (default: the still's own, as the observing mode sets it;
+        a sequence passes its one white for all frames).
     """
     from .sky import camera_vectors, escape_directions, sky_vectors, splat_stars
 
@@ -359,7 +365,7 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
                            "cannot be rendered in bands of rows (tiles or --scheduler)")
     height, width = alpha.shape
     sky = prepare_sky(scene)
-    white = _white(observation, scene, shaded)
+    white = _white(observation, scene, shaded) if white is None else float(white)
     tolerance = scene["tracing.tolerance"]
     centre_dirs = None
     composite = _disk_radiance(observation, shaded).copy()

@@ -194,7 +194,7 @@ def pixel_solid_angle(x, y, distance, pixel_size):
 
     Examples
     --------
-    >>> float(pixel_solid_angle(0.0, 0.0, 10.0, 1.0))
+    >>> round(float(pixel_solid_angle(0.0, 0.0, 10.0, 1.0)), 12)
     0.01
     """
     rho2 = (np.asarray(x) ** 2 + np.asarray(y) ** 2) / distance ** 2
@@ -272,7 +272,7 @@ def sample_panorama(texture, theta, phi):
     Examples
     --------
     >>> tex = np.zeros((2, 4, 1)); tex[:, 1] = 1.0   # column 1 spans phi = 180..270 deg
-    >>> sample_panorama(tex, np.array([np.pi / 2]), np.array([np.radians(225.0)]))[0, 0]
+    >>> float(sample_panorama(tex, np.array([np.pi / 2]), np.array([np.radians(225.0)]))[0, 0])
     1.0
     """
     theta = np.ascontiguousarray(theta, dtype=float).ravel()
