@@ -227,3 +227,18 @@ def test_command_line_reports_the_sample_counts(tmp_path, capsys):
     assert f"anti-aliasing: {info['samples_total']} samples" in out
     assert int(npz["samples"].sum()) == info["samples_total"]
     assert npz["composite"].shape == (40, 40)
+
+
+def test_example_outreach_scenes_are_valid_and_the_preview_renders(tmp_path, capsys):
+    from pathlib import Path
+
+    from render import load_scene
+
+    scenes = Path(__file__).resolve().parents[1] / "scenes"
+    full = load_scene(scenes / "outreach-corvid.yaml")
+    assert full["sky.kind"] == "stars" and full["image.supersampling"] == 3
+    status, out, err = run_cli(["still", scenes / "preview-corvid.yaml", "--output-dir",
+                                tmp_path], capsys)
+    assert status == 0, err
+    with Image.open(tmp_path / "preview-corvid-preview.png") as image:
+        assert image.size == (160, 90)

@@ -272,3 +272,30 @@ def test_moving_camera_sees_the_sky_aberrated_and_doppler_shifted():
     assert np.allclose(sky_vectors(theta, phi), rest, rtol=0, atol=1e-6)
     gamma = 1.0 / math.sqrt(1.0 - v * v)
     assert np.allclose(bundle.energy_ratio, 1.0 / (gamma * (1.0 - v * cos_moving)), rtol=1e-7)
+
+
+def test_a_star_exactly_behind_the_hole_is_seen_as_a_ring():
+    # Einstein (1936): the images of a point exactly behind the lens form a ring.  Seen from
+    # D = 1e4 M its radius is the tracer's ring angle (checked against scipy above); every
+    # pixel that receives the star's light must lie within 1.5 pixels of it (bilinear
+    # splats reach one pixel), and the ring must go all the way round.
+    distance = 1e4
+    side = 64
+    theta_e = math.sqrt(4.0 / distance)
+    fov = 3.0 * theta_e * distance
+    x, y = image_plane_grid(side, side, fov)
+    theta, phi = directions(x.ravel(), y.ravel(), distance)
+    sky = sky_vectors(theta, phi).reshape(side, side, 3)
+    star = StarField(np.array([[-1.0, 0.0, 0.0]]), np.array([1.0]), np.array([5800.0]))
+    flux, images, _ = splat_stars(star, sky, camera_vectors(x, y, distance),
+                                  np.ones((side, side)))
+    lit = flux[..., 0] > 0
+    psi = np.arctan(np.hypot(x, y) / distance)
+    pixel_angle = fov / side / distance
+    ring = ring_angle_from_tracer(distance)
+    assert np.all(np.abs(psi[lit] - ring) < 1.5 * pixel_angle)
+    azimuth = np.degrees(np.arctan2(y[lit], x[lit]))
+    assert len(np.unique(np.floor(azimuth / 10.0))) == 36          # every 10-degree sector
+    # Flux-weighted radius: within a quarter pixel of the ring (symmetric bilinear spread).
+    weighted = (psi * flux[..., 0]).sum() / flux.sum()
+    assert abs(weighted - ring) < 0.25 * pixel_angle
