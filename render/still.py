@@ -14,7 +14,7 @@ from .closed_form import closed_form_bundle, resolve_method
 from .points import trace_bundle
 from .spacetime import horizon_radii, isco_radius
 from .tiling import plan_still, render_in_tiles
-from .sensor import finish_still, needs_sensor
+from .sensor import finish_still, needs_sensor, prepare_sky
 
 __all__ = ["StillResult", "render_still", "observer_rays", "trace_and_shade"]
 
@@ -116,6 +116,8 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None):
     plan = plan_still(scene, memory_budget)
     # Emission law and observing mode first: a bad profile table fails before any tracing.
     observation = prepare_observation(scene)
+    if needs_sensor(scene):
+        prepare_sky(scene)  # a bad sky image fails before any tracing too
     if plan.tiles == 1:
         return _render_band(scene, observation, None, progress)
     return render_in_tiles(

@@ -242,3 +242,19 @@ def test_example_outreach_scenes_are_valid_and_the_preview_renders(tmp_path, cap
     assert status == 0, err
     with Image.open(tmp_path / "preview-corvid-preview.png") as image:
         assert image.size == (160, 90)
+
+
+def test_a_sky_is_not_sent_to_a_cluster_in_bands(tmp_path, capsys, no_tracing):
+    status, out, err = run_cli(["still", "--set", "sky.kind=stars", "--scheduler",
+                                "tcp://127.0.0.1:9", "--output-dir", tmp_path / "out"], capsys)
+    assert status == 2 and err.count("\n") == 1 and "--scheduler" in err and "sky" in err
+    assert not (tmp_path / "out").exists()
+
+
+def test_python_api_refuses_a_bad_panorama_before_tracing(tmp_path, no_tracing):
+    from render import SceneError
+
+    (tmp_path / "wide.png").write_bytes(b"")
+    Image.new("RGB", (30, 10)).save(tmp_path / "wide.png")
+    with pytest.raises(SceneError, match="sky.image .* 30 x 10 pixels"):
+        render_still(sky_scene(tmp_path / "wide.png"))
