@@ -334,7 +334,7 @@ def _rays_at(scene, x, y, velocity=None):
 
 
 def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, rows=None,
-                 white=None):
+                 white=None, velocity=None):
     """Composite sky and disk, supersample, add stars; return the updated Shaded.
 
     Parameters
@@ -357,6 +357,8 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
     white : float, optional
         The exposure's white (default: the still's own, as the observing mode sets it;
         a sequence passes its one white for all frames).
+    velocity : array_like (3,), optional
+        A moving camera's velocity (:func:`render.camera.camera_rays`), for the extra rays.
     """
     from .sky import camera_vectors, escape_directions, sky_vectors, splat_stars
 
@@ -396,7 +398,7 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
         x = (alpha.ravel()[chosen][:, None] + ox[None, :]).ravel()
         y = (beta.ravel()[chosen][:, None] + oy[None, :]).ravel()
         if x.size:
-            sub_bundle = _rays_at(scene, x, y)
+            sub_bundle = _rays_at(scene, x, y, velocity)
             sub_raw, sub_shaded = trace(x, y, sub_bundle)
             value = _disk_radiance(observation, sub_shaded)
             if sky.kind == "image":

@@ -258,3 +258,19 @@ def test_python_api_refuses_a_bad_panorama_before_tracing(tmp_path, no_tracing):
     Image.new("RGB", (30, 10)).save(tmp_path / "wide.png")
     with pytest.raises(SceneError, match="sky.image .* 30 x 10 pixels"):
         render_still(sky_scene(tmp_path / "wide.png"))
+
+
+def test_a_sequence_frame_of_a_resting_camera_matches_the_still():
+    # Sequences use the same sensor (sky, supersampling), seen from the camera's frame at the
+    # frame's time: for a camera at rest the frame must be the still, pixel for pixel.
+    from render.animation import plan_sequence, render_frame
+
+    scene = default_scene(**{"image.width": 40, "image.height": 24, "animation.frames": 1,
+                             "observer.field_of_view": 200.0, "sky.kind": "stars",
+                             "sky.star_density": 20.0, "image.supersampling": 2})
+    frame = render_frame(plan_sequence(scene).jobs[0])
+    still = render_still(scene)
+    assert np.array_equal(frame.pixels, still.pixels)
+    assert (still.pixels != render_still(default_scene(**{
+        **{k: scene[k] for k in ("image.width", "image.height", "observer.field_of_view")},
+        "sky.kind": "none"})).pixels).any()
