@@ -112,14 +112,19 @@ class Sky:
 def _panorama(path, mtime_ns, size):
     from .sky import load_panorama
 
-    return load_panorama(path)
+    texture = load_panorama(path)
+    texture.setflags(write=False)   # shared by every render that uses this file
+    return texture
 
 
 @functools.lru_cache(maxsize=4)
 def _stars(density, seed):
     from .sky import star_field
 
-    return star_field(density, seed)
+    stars = star_field(density, seed)
+    for array in (stars.directions, stars.flux, stars.temperature):
+        array.setflags(write=False)   # shared by every render with this density and seed
+    return stars
 
 
 def _resolve(scene, name):
