@@ -449,47 +449,40 @@ def _geometry_key(scene, velocity):
             "observer.azimuth", "observer.frame", "observer.field_of_view", "observer.roll",
             "image.width", "image.height", "disk.inner_radius", "disk.outer_radius",
             "disk.surface", "disk.orders", "tracing.tolerance", "tracing.max_steps",
-            "tracing.max_crossings")
+            "tracing.max_crossings", "sky.kind")
     return tuple(scene[k] for k in keys) + (velocity,)
 
 
 def _trace(scene, velocity, progress=None):
     """Bundle and raw kernel output; a frame with the same geometry as the last reuses it."""
-    from .points import trace_bundle
-
     key = _geometry_key(scene, velocity)
     if key in _TRACE_CACHE:
         return _TRACE_CACHE[key]
     _, _, bundle = observer_rays(scene, velocity=velocity)
-    raw = trace_bundle(bundle, scene.spin, n_record=scene["disk.orders"],
-                       tolerance=scene["tracing.tolerance"],
-                       max_steps=scene["tracing.max_steps"],
-                       max_crossings=scene["tracing.max_crossings"],
-                       stop_on_disk=scene["disk.surface"] == "opaque",
-                       r_in=scene.inner_radius, r_out=scene["disk.outer_radius"],
-                       progress=progress)
+    raw = _trace_bundle(scene, bundle, progress)
     _TRACE_CACHE.clear()
     _TRACE_CACHE[key] = (bundle, raw)
     return bundle, raw
 
 
-def render_frame(job, numba_threads=None):
-    """Render one :class:`FrameJob`; return a :class:`FrameResult`.
+def _trace_bundle(scene, bundle, progress=None):
+    from .points import trace_bundle
 
-    ``numba_threads`` caps the kernel's threads in this process (workers of a
-    pool or cluster share their machine's cores).
-    """
+    return trace_bundle(bundle, scene.spin, n_record=scene["disk.orders"],
+                        tolerance=scene["tracing.tolerance"],
+                        max_steps=scene["tracing.max_steps"],
+                        max_crossings=scene["tracing.max_crossings"],
+                        stop_on_disk=scene["disk.surface"] == "opaque",
+                        r_in=scene.inner_radius, r_out=scene["disk.outer_radius"],
+                        progress=progress, final_state=scene["sky.kind"] != "none")
+
+
+def _shade_traced(scene, job, bundle, raw):
+    """(observation, shaded) of traced rays, with the pattern at the frame's time."""
     from .observing import prepare_observation, shade
 
-    if numba_threads:
-        import numba
-
-        numba.set_num_threads(max(1, min(int(numba_threads), numba.config.NUMBA_NUM_THREADS)))
-    started = time.perf_counter()
-    scene = job.scene
     spin = scene.spin
     orders = scene["disk.orders"]
-    bundle, raw = _trace(scene, job.velocity)
     g = redshift_factor(raw["r"], bundle.lam[:, None], spin, bundle.energy_ratio[:, None])
     hits = on_disk(raw["r"], scene.inner_radius, scene["disk.outer_radius"])
     if scene["disk.surface"] == "opaque":
@@ -509,9 +502,41 @@ def render_frame(job, numba_threads=None):
             size=scene["pattern.size"], contrast=scene["pattern.contrast"],
             arms=scene["pattern.arms"], pitch_deg=scene["pattern.pitch"])
         observation.law = _ModulatedLaw(observation.law, np.where(hits, factor, 1.0))
-    shaded = shade(observation, scene, raw, g, hits, bundle)
+    return observation, shade(observation, scene, raw, g, hits, bundle)
+
+
+def render_frame(job, numba_threads=None):
+    """Render one :class:`FrameJob`; return a :class:`FrameResult`.
+
+    ``numba_threads`` caps the kernel's threads in this process (workers of a
+    pool or cluster share their machine's cores).
+    """
+    from .sensor import finish_still, needs_sensor
+
+    if numba_threads:
+        import numba
+
+        numba.set_num_threads(max(1, min(int(numba_threads), numba.config.NUMBA_NUM_THREADS)))
+    started = time.perf_counter()
+    scene = job.scene
+    bundle, raw = _trace(scene, job.velocity)
+    observation, shaded = _shade_traced(scene, job, bundle, raw)
     height, width = scene["image.height"], scene["image.width"]
-    if observation.mode == "true_colour":
+    if needs_sensor(scene):
+        # Sky and supersampling seen from the moving camera's frame (render.sensor), at the
+        # sequence's one white; extra rays are shaded at the same frame time.
+        from .camera import image_plane_grid
+
+        def trace_more(x, y, more):
+            more_raw = _trace_bundle(scene, more)
+            return more_raw, _shade_traced(scene, job, more, more_raw)[1]
+
+        alpha, beta = image_plane_grid(width, height, scene["observer.field_of_view"],
+                                       scene["observer.roll"])
+        white = None if observation.mode == "true_colour" else job.white
+        pixels = finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace_more,
+                              white=white, velocity=job.velocity).pixels
+    elif observation.mode == "true_colour":
         pixels = shaded.pixels
     else:
         # One white for the whole sequence (frame 0's), so brightness changes are real.

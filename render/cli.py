@@ -38,6 +38,8 @@ def _parser():
     still.add_argument("scene", nargs="?", help="YAML scene file (default: built-in default scene)")
     _add_common_options(still)
     still.add_argument("--quiet", action="store_true", help="print nothing on success")
+    still.add_argument("--preview", action="store_true",
+                       help="quick look: small, one order, loose tolerance (image.preview)")
     still.add_argument("--scheduler", metavar="ADDRESS",
                        help="render bands of rows on a Dask distributed scheduler")
 
@@ -94,14 +96,24 @@ def _still(args):
     from .observing import prepare_observation
     from .products import product_paths, write_products
 
+    from .sensor import prepare_sky, preview_scene
+
+    if getattr(args, "preview", False):
+        args.overrides = list(args.overrides) + ["image.preview=true"]
     scene = _load(args)
+    if scene["image.preview"]:
+        scene = preview_scene(scene)
     prepare_observation(scene)  # reads an emission profile table: fail before any file is made
+    prepare_sky(scene)  # reads a sky panorama: likewise
     folder = Path(args.output_dir)
     # Refuse before any work if a target exists (nothing the user made is
     # overwritten silently).
     check_free(list(still_paths(scene.document, folder).values())
                + list(product_paths(scene.document, folder).values()), args.overwrite)
     scheduler = getattr(args, "scheduler", None)
+    if scheduler and (scene["sky.kind"] != "none" or scene["image.supersampling"] > 1):
+        raise OutputFolderError("--scheduler renders bands of rows, but a sky or "
+                                "image.supersampling needs the whole image at once")
     if scheduler:
         from .distributed import check_scheduler
 
@@ -140,6 +152,16 @@ def _still(args):
               f"{meta['total_seconds']:.2f} s (spin {scene.spin:g}, inclination "
               f"{scene['observer.inclination']:g} deg, ISCO {meta['isco']:.4f} M); pixels: {counts}")
         observed = meta.get("observing", {})
+        antialias = observed.get("antialias")
+        if antialias:
+            print(f"anti-aliasing: {antialias['samples_total']} samples "
+                  f"({antialias['samples_per_pixel_mean']:.2f} per pixel; "
+                  f"{antialias['pixels_refined']} of {antialias['pixels']} pixels refined "
+                  f"with {antialias['supersampling']}x{antialias['supersampling']} "
+                  f"{antialias['filter']}-filtered rays)")
+        if observed.get("sky", {}).get("kind") == "stars":
+            stars = observed["sky"]
+            print(f"sky: {stars['stars']} stars, {stars['star_images']:.0f} star images in view")
         for warning in observed.get("warnings", ()):
             print(f"nullray: warning: {warning}", file=sys.stderr)
         if "total_flux_jy" in observed:

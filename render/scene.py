@@ -95,6 +95,19 @@ KEYS = {spec.path: spec for spec in [
        "Pixels across.", low=1, high=MAX_PIXELS_SIDE),
     _k("image.height", "int", 512, "pixels", f"1 <= height <= {MAX_PIXELS_SIDE}",
        "Pixels down.", low=1, high=MAX_PIXELS_SIDE),
+    _k("image.supersampling", "int", 1, "-", "1 <= supersampling <= 8",
+       "Anti-aliasing: n x n sub-pixel rays per refined pixel (1: one ray per pixel centre).",
+       low=1, high=8),
+    _k("image.filter", "choice", "tent", "-", "box, tent",
+       "Reconstruction filter the sub-pixel rays sample: the pixel's square, or the tent of "
+       "radius one pixel.", choices=("box", "tent")),
+    _k("image.adaptive", "bool", True, "-", "true, false",
+       "Supersample only pixels whose neighbours differ in fate, crossings or brightness."),
+    _k("image.refine_threshold", "float", 0.02, "display", "0 < refine_threshold <= 1",
+       "Displayed-brightness difference (0..1) between neighbours that triggers refinement.",
+       low=0.0, high=1.0, low_open=True),
+    _k("image.preview", "bool", False, "-", "true, false",
+       "Quick look: 160 pixels wide, one order, tolerance 1e-6, no NPZ, name + '-preview'."),
     _k("disk.inner_radius", "radius_or_isco", "isco", "M", "'isco' or a radius >= the ISCO",
        "Inner edge of the disk; emission inside the ISCO (plunging gas) is not modelled yet."),
     _k("disk.outer_radius", "float", 20.0, "M", "inner_radius < outer_radius <= 1e6",
@@ -161,6 +174,22 @@ KEYS = {spec.path: spec for spec in [
     _k("observing.line_high", "float", 1.6, "E/E0", "line_low < line_high <= 100",
        "High edge of the line bins in units of the rest energy.", low=0.0, high=100.0,
        low_open=True),
+    _k("sky.kind", "choice", "none", "-", "none, stars, image",
+       "Background at infinity for a camera: none (black), stars (procedural point sources) or "
+       "image (an equirectangular panorama).", choices=("none", "stars", "image")),
+    _k("sky.image", "path", None, "-", "a 2:1 image file (relative to the scene file)",
+       "Equirectangular panorama of sky.kind image (row 0 along the spin axis)."),
+    _k("sky.brightness", "float", 0.05, "x white", "0 <= brightness <= 1e6",
+       "Panorama level: a white panorama pixel shows at brightness x the disk's white.",
+       low=0.0, high=1e6),
+    _k("sky.star_brightness", "float", 2.0, "x white", "0 <= star_brightness <= 1e6",
+       "A magnitude-0 star whose whole flux lands in one pixel shows at this x the disk's "
+       "white.", low=0.0, high=1e6),
+    _k("sky.star_density", "float", 5.0, "1/deg^2", "0 <= star_density <= 50",
+       "Mean number of stars (magnitudes 0 to 8) per square degree of sky.",
+       low=0.0, high=50.0),
+    _k("sky.seed", "int", 1, "-", "0 <= seed <= 4294967295",
+       "Seed of the star field (the same seed gives the same stars).", low=0, high=2**32 - 1),
     _k("tracing.method", "choice", "integrate", "-", "integrate, closed-form, auto",
        "integrate: Dormand–Prince integration; closed-form: elliptic-integral solution "
        "(distant observer only; docs/closed_form.md); auto: closed-form where valid.",
@@ -463,11 +492,17 @@ def _check_consistency(values):
     from .observing import check_observing
 
     check_observing(values)
+    from .sensor import check_sensor
+
+    check_sensor(values)
     _check_animation(values, inner)
     # Refuse, before any work, a still that cannot fit the memory budget even in tiles.
     from .tiling import check_memory
 
-    check_memory(values)
+    plan = check_memory(values)
+    from .sensor import check_untiled
+
+    check_untiled(values, plan)
 
 
 def frame_count(values):

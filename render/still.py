@@ -14,8 +14,9 @@ from .closed_form import closed_form_bundle, resolve_method
 from .points import trace_bundle
 from .spacetime import horizon_radii, isco_radius
 from .tiling import plan_still, render_in_tiles
+from .sensor import finish_still, needs_sensor, prepare_sky
 
-__all__ = ["StillResult", "render_still", "observer_rays"]
+__all__ = ["StillResult", "render_still", "observer_rays", "trace_and_shade"]
 
 
 @dataclass
@@ -122,6 +123,8 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps
     plan = plan_still(scene, memory_budget)
     # Emission law and observing mode first: a bad profile table fails before any tracing.
     observation = prepare_observation(scene)
+    if needs_sensor(scene):
+        prepare_sky(scene)  # a bad sky image fails before any tracing too
     if plan.tiles == 1:
         return _render_band(scene, observation, None, progress, maps)
     return render_in_tiles(
@@ -139,31 +142,16 @@ def _render_band(scene, observation, rows, progress, maps=True):
     orders = scene["disk.orders"]
     spin = scene.spin
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
-    opaque = scene["disk.surface"] == "opaque"
     alpha, beta, bundle = observer_rays(scene, rows)
     method = resolve_method(scene["tracing.method"], scene["observer.kind"])
-    if method == "closed-form":
-        raw = closed_form_bundle(alpha, beta, bundle, spin, scene["observer.inclination"],
-                                 n_record=orders, max_crossings=scene["tracing.max_crossings"],
-                                 stop_on_disk=opaque, r_in=r_in, r_out=r_out,
-                                 want_end=False, want_maps=maps, progress=progress)
-    else:
-        raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
-                           max_steps=scene["tracing.max_steps"],
-                           max_crossings=scene["tracing.max_crossings"],
-                           stop_on_disk=opaque, r_in=r_in, r_out=r_out, progress=progress)
+    raw, g, hits, shaded = trace_and_shade(scene, observation, alpha, beta, bundle, progress,
+                                           maps)
     traced = time.perf_counter()
-    g = redshift_factor(raw["r"], bundle.lam[:, None], spin, bundle.energy_ratio[:, None])
-    hits = on_disk(raw["r"], r_in, r_out)
-    if opaque:
-        # Only the crossing that ended the ray shines; earlier ones missed the disk.
-        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
-        ended_on_disk = raw["fate"] == FATE_DISK
-        keep = np.zeros_like(hits)
-        rows = np.nonzero(ended_on_disk & (raw["n_crossings"] <= orders))[0]
-        keep[rows, last[rows]] = True
-        hits &= keep
-    shaded = shade(observation, scene, raw, g, hits, bundle)
+    if needs_sensor(scene):
+        # The sky behind the disk, supersampling and stars (render.sensor).
+        shaded = finish_still(scene, observation, shaded, raw, bundle, alpha, beta,
+                              lambda x, y, more: _traced_and_shaded(scene, observation, x, y,
+                                                                    more), rows=rows)
     intensity, pixels = shaded.intensity, shaded.pixels
 
     def image(a):
@@ -210,3 +198,48 @@ def _render_band(scene, observation, rows, progress, maps=True):
         products={k: stack(v) if k in PER_ORDER_PRODUCTS else image(v)
                   for k, v in shaded.products.items()},
         tables=shaded.tables)
+
+
+def _traced_and_shaded(scene, observation, x, y, bundle):
+    raw, _, _, shaded = trace_and_shade(scene, observation, x, y, bundle)
+    return raw, shaded
+
+
+def trace_and_shade(scene, observation, alpha, beta, bundle, progress=None, maps=True):
+    """Trace a bundle as the scene asks and shade its disk crossings.
+
+    ``alpha, beta`` are the rays' image-plane points (M).  Returns
+    ``(raw, g, hits, shaded)``: the kernel's arrays, the redshift
+    factors and shining crossings (N, orders), and the observing mode's
+    :class:`~render.observing.Shaded`.  A camera with a sky also keeps each
+    ray's final state (for its direction at infinity, :mod:`render.sky`).
+    ``maps=False`` lets the closed form skip phi and the delay (NaN then).
+    """
+    orders = scene["disk.orders"]
+    spin = scene.spin
+    r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
+    opaque = scene["disk.surface"] == "opaque"
+    method = resolve_method(scene["tracing.method"], scene["observer.kind"])
+    if method == "closed-form":
+        raw = closed_form_bundle(alpha, beta, bundle, spin, scene["observer.inclination"],
+                                 n_record=orders, max_crossings=scene["tracing.max_crossings"],
+                                 stop_on_disk=opaque, r_in=r_in, r_out=r_out,
+                                 want_end=False, want_maps=maps, progress=progress)
+    else:
+        raw = trace_bundle(bundle, spin, n_record=orders, tolerance=scene["tracing.tolerance"],
+                           max_steps=scene["tracing.max_steps"],
+                           max_crossings=scene["tracing.max_crossings"],
+                           stop_on_disk=opaque, r_in=r_in, r_out=r_out, progress=progress,
+                           final_state=scene["sky.kind"] != "none")
+    g = redshift_factor(raw["r"], bundle.lam[:, None], spin, bundle.energy_ratio[:, None])
+    hits = on_disk(raw["r"], r_in, r_out)
+    if opaque:
+        # Only the crossing that ended the ray shines; earlier ones missed the disk.
+        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
+        ended_on_disk = raw["fate"] == FATE_DISK
+        keep = np.zeros_like(hits)
+        rows = np.nonzero(ended_on_disk & (raw["n_crossings"] <= orders))[0]
+        keep[rows, last[rows]] = True
+        hits &= keep
+    shaded = shade(observation, scene, raw, g, hits, bundle)
+    return raw, g, hits, shaded

@@ -320,8 +320,52 @@ def test_exponent_rule_does_not_change_plain_pyyaml():
     assert yaml.safe_load("x: 1e6") == {"x": "1e6"}
 
 
+def _png_bytes(width, height):
+    import io
+
+    from PIL import Image
+
+    buffer = io.BytesIO()
+    Image.new("RGB", (width, height)).save(buffer, format="PNG")
+    return buffer.getvalue()
+
+
 # Cases that need a second file beside the scene: (id, scene text, {file name: bytes}, fragments).
 BAD_SCENES_WITH_FILES = [
+    ("sky-image-not-2-to-1", "sky:\n  kind: image\n  image: sky.png\n",
+     {"sky.png": _png_bytes(30, 20)}, ["sky.image", "'sky.png'", "30 x 20", "2:1"]),
+    ("sky-image-not-an-image", "sky:\n  kind: image\n  image: sky.png\n",
+     {"sky.png": b"certainly not a picture"}, ["sky.image", "'sky.png'", "cannot be read"]),
+    ("sky-image-missing", "sky:\n  kind: image\n  image: absent.png\n", {},
+     ["sky.image", "'absent.png'", "No such file"]),
+    ("sky-image-is-a-folder", "sky:\n  kind: image\n  image: sub\n", {"sub/keep": b""},
+     ["sky.image", "'sub'"]),
+    ("sky-image-not-given", "sky:\n  kind: image\n", {}, ["sky.kind", "'image'", "sky.image"]),
+    ("sky-negative-star-density", "sky:\n  kind: stars\n  star_density: -1\n", {},
+     ["sky.star_density", "-1", "0 <= star_density <= 50"]),
+    ("sky-negative-seed", "sky:\n  kind: stars\n  seed: -3\n", {},
+     ["sky.seed", "-3", "0 <= seed"]),
+    ("sky-fractional-seed", "sky:\n  seed: 1.5\n", {}, ["sky.seed", "1.5", "whole number"]),
+    ("sky-unknown-kind", "sky:\n  kind: nebula\n", {}, ["sky.kind", "'nebula'", "stars"]),
+    ("sky-for-a-distant-observer", "observer:\n  kind: distant\nsky:\n  kind: stars\n", {},
+     ["sky.kind", "'stars'", "observer.kind", "'camera'"]),
+    ("sky-in-line-mode", "sky:\n  kind: stars\nobserving:\n  mode: line\n", {},
+     ["sky.kind", "observing.mode", "'line'"]),
+    ("supersampling-zero", "image:\n  supersampling: 0\n", {},
+     ["image.supersampling", "0", "1 <= supersampling <= 8"]),
+    ("supersampling-too-large", "image:\n  supersampling: 9\n", {},
+     ["image.supersampling", "9", "1 <= supersampling <= 8"]),
+    ("supersampling-not-a-number", "image:\n  supersampling: lots\n", {},
+     ["image.supersampling", "'lots'"]),
+    ("supersampling-in-spectrum-mode", "image:\n  supersampling: 2\nobserving:\n"
+     "  mode: spectrum\nemission:\n  law: novikov_thorne\n", {},
+     ["image.supersampling", "observing.mode", "'spectrum'"]),
+    ("unknown-filter", "image:\n  filter: lanczos\n", {}, ["image.filter", "'lanczos'", "tent"]),
+    ("refine-threshold-zero", "image:\n  refine_threshold: 0\n", {},
+     ["image.refine_threshold", "0", "0 < refine_threshold <= 1"]),
+    ("preview-not-a-bool", "image:\n  preview: maybe\n", {}, ["image.preview", "'maybe'"]),
+    ("sky-in-a-tiled-still", "sky:\n  kind: stars\ntracing:\n  memory_budget: 0.01\n", {},
+     ["512 x 512", "tracing.memory_budget = 0.01 GB", "sky", "whole image"]),
     ("profile-law-without-table", "emission:\n  law: profile\n", {},
      ["emission.law", "'profile'", "emission.profile"]),
     ("profile-table-missing", "emission:\n  law: profile\n  profile: absent.csv\n", {},
