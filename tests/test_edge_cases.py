@@ -316,6 +316,9 @@ def test_negative_energy_photons_seen_from_deep_in_the_ergoregion(tmp_path):
     assert np.all(np.isfinite(g)) and np.all(g > 0.0)
     assert np.all(np.isfinite(still.intensity)) and np.all(still.intensity.ravel()[hits] > 0.0)
     r_isco = isco_radius(a)
+    from render.emission import emission_cosine
+
+    bundle = camera_rays(x, y, a, r_o, inclination, 0.0, "zamo")
     for i in np.nonzero(hits)[0][::4]:
         p = photons[i]
         (state,), _ = _backward_crossings(a, r_o, theta_o, p, 1)
@@ -330,8 +333,13 @@ def test_negative_energy_photons_seen_from_deep_in_the_ergoregion(tmp_path):
         emitted = -u_t * (p[0] + omega * p[3])
         assert r_c >= r_isco and emitted > 0.0
         # Tolerance: the crossing radius agrees to ~1e-9 (previous test) and g is smooth in r.
-        assert g[np.searchsorted(np.nonzero(hits)[0], i)] == pytest.approx(1.0 / emitted,
-                                                                              rel=1e-7)
+        g_i = g[np.searchsorted(np.nonzero(hits)[0], i)]
+        assert g_i == pytest.approx(1.0 / emitted, rel=1e-7)
+        # Emission angle from the disk normal e_theta = d_theta / r in the emitter's frame:
+        # cos = |p_theta| / (r E_em) (Cunningham 1975, sec. II), with p_theta from scipy.
+        cosine = emission_cosine(r_c, bundle.eta[i], g_i, bundle.energy_ratio[i])
+        assert 0.0 < cosine <= 1.0
+        assert cosine == pytest.approx(abs(state[6]) / (r_c * emitted), rel=1e-6)
 
 
 # --- face-on, edge-on, and the disk exactly edge-on -------------------------------------
