@@ -10,11 +10,17 @@ What is measured
 The still is rendered the way ``nullray still`` renders it: validated scene,
 :func:`render.still.render_still` with its temporary tile files inside the
 output folder, then :func:`render.output.write_still` (PNG and the NPZ of every
-map, streamed from the tile files), then the temporary files are removed.  The
-scene: distant observer, spin 0.9, inclination 60 deg, opaque disk out to
-20 M, ``--orders`` recorded orders (default 2), tolerance ``--tolerance``
-(default 1e-6, looser than the 1e-9 default so that 67 million rays take
-minutes, not half an hour; memory does not depend on it).
+map, streamed from the tile files) and :func:`render.products.write_products`
+(the extra products, streamed in blocks of a tile's rows), then the temporary
+files are removed.  The scene: distant observer, spin 0.9, inclination 60 deg,
+opaque disk out to 20 M, ``--orders`` recorded orders (default 2), tolerance
+``--tolerance`` (default 1e-6, looser than the 1e-9 default so that 67 million
+rays take minutes, not half an hour; memory does not depend on it).
+
+``--products all`` (the default) asks for every product a tiled still can
+have: true colour with a fixed exposure (Novikov–Thorne disk), so the 16-bit
+PNG and the linear ``.npy``, and ``output.fits``.  ``--products none`` renders
+the bolometric still with only its PNG and NPZ.
 
 ``peak_rss_mb`` is ``ru_maxrss`` of this process (children excluded) at the
 end, which covers rendering and writing; ``baseline_rss_mb`` is the same
@@ -46,6 +52,8 @@ def main(argv=None):
     parser.add_argument("--orders", type=int, default=2)
     parser.add_argument("--budget", type=float, default=2.0, help="tracing.memory_budget, GB")
     parser.add_argument("--tolerance", type=float, default=1e-6)
+    parser.add_argument("--products", choices=("all", "none"), default="all",
+                        help="extra products asked for (see the docstring)")
     parser.add_argument("--output-dir", default=None,
                         help="folder for the files (default: a new temporary folder)")
     parser.add_argument("--keep", action="store_true", help="keep the written files")
@@ -53,11 +61,16 @@ def main(argv=None):
 
     from render import default_scene
     from render.output import write_still
+    from render.products import write_products
     from render.still import render_still
 
     values = {"name": "bench-memory", "observer.kind": "distant", "black_hole.spin": 0.9,
               "observer.inclination": 60.0, "disk.orders": args.orders,
               "tracing.tolerance": args.tolerance, "tracing.memory_budget": args.budget}
+    if args.products == "all":
+        values.update({"observing.mode": "true_colour", "emission.law": "novikov_thorne",
+                       "observing.colour_exposure": "fixed", "observing.colour_reference": 1e10,
+                       "output.fits": True})
     render_still(default_scene(**values, **{"image.width": 16, "image.height": 16}))
     baseline = rss_mb()
     scene = default_scene(**values, **{"image.width": args.size, "image.height": args.size})
@@ -69,6 +82,7 @@ def main(argv=None):
     rendered = time.perf_counter()
     try:
         paths = write_still(result, folder)
+        paths.update(write_products(result, folder))
     finally:
         result.release()
     written = time.perf_counter()
@@ -79,6 +93,7 @@ def main(argv=None):
     line = {
         "benchmark": "nullray memory", "width": args.size, "height": args.size,
         "orders": args.orders, "tolerance": args.tolerance, "memory_budget_gb": args.budget,
+        "products": args.products, "observing_mode": values.get("observing.mode", "bolometric"),
         "tiles": tiles["count"], "rows_per_tile": tiles["rows_per_tile"],
         "estimated_untiled_gb": tiles.get("estimated_untiled_gb"),
         "baseline_rss_mb": round(baseline, 1), "peak_rss_mb": round(peak, 1),

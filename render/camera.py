@@ -79,7 +79,9 @@ class RayBundle:
     energy_ratio : ndarray, shape (N,)
         Photon energy measured by the observer per unit conserved energy E
         (1 for a distant observer); the redshift factor is
-        ``g = energy_ratio * E / E_emitter``.
+        ``g = energy_ratio * E / E_emitter``.  Negative for a photon of
+        negative E (a camera inside the ergoregion), whose Mino-time
+        velocities in ``states`` are then per |E| (see :mod:`render.geodesics`).
     u_escape : float
         1/r beyond which an outgoing ray has escaped (the observer's own 1/r).
     """
@@ -328,8 +330,10 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
         polar_term = -a * a * cos_o ** 2
     else:
         polar_term = cos_o ** 2 * (lam ** 2 / sin2 - a * a)
-    mino_theta = sigma * p[2] / energy
-    mino_r = sigma * p[1] / energy
+    # Mino time per |E| (render.geodesics): for E < 0 (only inside the ergoregion)
+    # dividing by E would reverse the (r, theta) motion along the ray.
+    mino_theta = sigma * p[2] / np.abs(energy)
+    mino_r = sigma * p[1] / np.abs(energy)
     eta = mino_theta ** 2 + polar_term
     u = 1.0 / r
     states = np.zeros((x.size, 6))

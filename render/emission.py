@@ -244,7 +244,10 @@ def emission_cosine(r, eta, g, energy_ratio=1.0):
     on a circular orbit (no theta motion) is e_theta = d_theta / r.  The energy
     the emitter measures is E_em = E energy_ratio / g, so
 
-        mu_em = (|p_theta| / r) / E_em = g sqrt(eta) / (r energy_ratio).
+        mu_em = (|p_theta| / r) / E_em = g sqrt(eta) / (r |energy_ratio|)
+
+    (|p_theta| = sqrt(eta) |E|, and E energy_ratio, the observer's energy, is positive
+    even for E < 0).
 
     The sign of the radial motion does not enter mu.
 
@@ -270,7 +273,7 @@ def emission_cosine(r, eta, g, energy_ratio=1.0):
     """
     with np.errstate(invalid="ignore"):
         mu = np.asarray(g) * np.sqrt(np.maximum(np.asarray(eta, dtype=float), 0.0)) / (
-            np.asarray(r, dtype=float) * np.asarray(energy_ratio))
+            np.asarray(r, dtype=float) * np.abs(np.asarray(energy_ratio)))
     return np.clip(mu, 0.0, 1.0)
 
 

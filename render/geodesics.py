@@ -21,6 +21,14 @@ The polar variable is ``mu = cos(theta)``, for which
 (dmu/dsigma)^2 = eta - (eta + lam^2 - a^2) mu^2 - a^2 mu^4 is also a
 polynomial: the equations of motion need no trigonometric function at all.
 
+Photons of negative conserved energy (seen only inside the ergoregion; Misner,
+Thorne & Wheeler 1973, sec. 33.8) use Mino time per |E|, d sigma =
+|E| d(affine)/Sigma: R and Theta above are then unchanged (they are R/E^2 and
+Theta/E^2 of the momenta), and so are the (u, mu) equations, while dphi/dsigma
+and dt/dsigma, linear in the momenta, change sign with E.  The kernel takes
+the sign of E per ray (``energy_sign``).  Such photons cannot reach infinity:
+their radial motion turns inside the ergoregion, so they never "escape".
+
 State vector, in the backward (into the past) direction:
     y = (u, du/dsigma, mu, dmu/dsigma, phi, delay)
 where ``delay`` is the regularised coordinate-time delay
@@ -114,8 +122,13 @@ _E1, _E3, _E4, _E5, _E6, _E7 = (
     71.0 / 57600.0, -71.0 / 16695.0, 71.0 / 1920.0, -17253.0 / 339200.0, 22.0 / 525.0, -1.0 / 40.0)
 
 @njit(cache=True, inline="always", fastmath=_FAST, error_model="numpy")
-def _derivatives(y, spin, lam, eta, out):
-    """Backward Mino-time derivatives of the state ``y`` into ``out`` (no trigonometry)."""
+def _derivatives(y, spin, lam, eta, sign, out):
+    """Backward Mino-time derivatives of the state ``y`` into ``out`` (no trigonometry).
+
+    ``sign`` is the sign of the conserved energy E: sigma is Mino time per |E|,
+    so the (u, mu) equations are those of lam, eta for either sign, while
+    dphi/dsigma and dt/dsigma (both linear in the momenta) carry the sign of E.
+    """
     u = y[0]
     p_u = y[1]
     mu = y[2]
@@ -133,18 +146,22 @@ def _derivatives(y, spin, lam, eta, out):
     azimuth_rate = lam / sin2 if lam != 0.0 else 0.0
     # Delta / r^2, written in u so that nothing cancels at large r.
     delta_u = 1.0 - 2.0 * u + a2 * u * u
-    out[4] = -(spin * u * (2.0 - spin * lam * u) / delta_u + azimuth_rate)
-    # (1 - p_u)/u^2 without cancellation while p_u ~ sqrt(P) > 0 (inward leg).
-    if p_u > 0.5:
-        excess = -(c2 + c3 * u + c4 * u * u) / (1.0 + p_u)
+    out[4] = -sign * (spin * u * (2.0 - spin * lam * u) / delta_u + azimuth_rate)
+    # d delay/dsigma = sign T - (r^2+a^2)/Delta p_u/u^2, with T the per-|E| dt/dsigma:
+    # the r^2 terms cancel through (1 - sign p_u)/u^2, written without cancellation
+    # while sign p_u ~ sqrt(P) > 0 (1 - P = -(c2 u^2 + c3 u^3 + c4 u^4)).
+    p_s = sign * p_u
+    if p_s > 0.5:
+        excess = -(c2 + c3 * u + c4 * u * u) / (1.0 + p_s)
     else:
         uu = max(u * u, 1e-300)
-        excess = (1.0 - p_u) / uu
-    out[5] = (1.0 + a2 * u * u) / delta_u * (excess + a2 - spin * lam) - spin * (spin * sin2 - lam)
+        excess = (1.0 - p_s) / uu
+    out[5] = sign * ((1.0 + a2 * u * u) / delta_u * (excess + a2 - spin * lam)
+                     - spin * (spin * sin2 - lam))
 
 
 @njit(cache=True, fastmath=_FAST, error_model="numpy")
-def _dopri_step(y, k1, h, spin, lam, eta, k, y_out, rtol, atol):
+def _dopri_step(y, k1, h, spin, lam, eta, sign, k, y_out, rtol, atol):
     """One Dormand–Prince 5(4) step of size h from y (with k1 = f(y)).
 
     Writes the 5th-order solution into ``y_out`` and f(y_out) into ``k[5]``;
@@ -153,24 +170,24 @@ def _dopri_step(y, k1, h, spin, lam, eta, k, y_out, rtol, atol):
     tmp = k[6]
     for i in range(N_STATE):
         tmp[i] = y[i] + h * _A21 * k1[i]
-    _derivatives(tmp, spin, lam, eta, k[0])
+    _derivatives(tmp, spin, lam, eta, sign, k[0])
     for i in range(N_STATE):
         tmp[i] = y[i] + h * (_A31 * k1[i] + _A32 * k[0, i])
-    _derivatives(tmp, spin, lam, eta, k[1])
+    _derivatives(tmp, spin, lam, eta, sign, k[1])
     for i in range(N_STATE):
         tmp[i] = y[i] + h * (_A41 * k1[i] + _A42 * k[0, i] + _A43 * k[1, i])
-    _derivatives(tmp, spin, lam, eta, k[2])
+    _derivatives(tmp, spin, lam, eta, sign, k[2])
     for i in range(N_STATE):
         tmp[i] = y[i] + h * (_A51 * k1[i] + _A52 * k[0, i] + _A53 * k[1, i] + _A54 * k[2, i])
-    _derivatives(tmp, spin, lam, eta, k[3])
+    _derivatives(tmp, spin, lam, eta, sign, k[3])
     for i in range(N_STATE):
         tmp[i] = y[i] + h * (_A61 * k1[i] + _A62 * k[0, i] + _A63 * k[1, i]
                              + _A64 * k[2, i] + _A65 * k[3, i])
-    _derivatives(tmp, spin, lam, eta, k[4])
+    _derivatives(tmp, spin, lam, eta, sign, k[4])
     for i in range(N_STATE):
         y_out[i] = y[i] + h * (_B1 * k1[i] + _B3 * k[1, i] + _B4 * k[2, i]
                                + _B5 * k[3, i] + _B6 * k[4, i])
-    _derivatives(y_out, spin, lam, eta, k[5])
+    _derivatives(y_out, spin, lam, eta, sign, k[5])
     total = 0.0
     for i in range(N_CONTROLLED):
         e = h * (_E1 * k1[i] + _E3 * k[1, i] + _E4 * k[2, i] + _E5 * k[3, i]
@@ -213,7 +230,7 @@ def _hermite_root(v0, v1, d0, d1, target):
 
 
 @njit(cache=True, error_model="numpy")
-def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
+def _trace_one(y0, spin, lam, eta, sign, u_escape, u_capture, rtol, atol, h_initial,
                max_steps, max_crossings, n_record, stop_on_disk, r_in, r_out,
                out_r, out_phi, out_delay, out_inward, row, record_final, out_final):
     """Trace one ray; fill crossing rows; return (fate, n_crossings, steps, theta_end, phi_end).
@@ -236,7 +253,7 @@ def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
     if not is_finite:
         # Every step would be rejected: stop at once instead of spending max_steps.
         return FATE_UNRESOLVED, 0, 0, np.nan, np.nan
-    _derivatives(y, spin, lam, eta, f)
+    _derivatives(y, spin, lam, eta, sign, f)
     # Rays with lam = 0 reach the axis: each polar turning point is then a
     # passage through a pole, where the azimuth jumps by pi.
     through_poles = lam == 0.0
@@ -248,7 +265,7 @@ def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
     theta_end = np.nan
     phi_end = np.nan
     while steps < max_steps:
-        err = _dopri_step(y, f, h, spin, lam, eta, k, y_new, rtol, atol)
+        err = _dopri_step(y, f, h, spin, lam, eta, sign, k, y_new, rtol, atol)
         steps += 1
         if not (err <= 1.0) or abs(y_new[2] - y[2]) > 0.5 or not math.isfinite(y_new[4]):
             if math.isfinite(err) and abs(y_new[2] - y[2]) <= 0.5:
@@ -263,7 +280,7 @@ def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
         if y_new[0] >= u_capture:
             s_end = _hermite_root(y[0], y_new[0], h * f[0], h * k[5, 0], u_capture)
             end_fate = FATE_CAPTURED
-        elif y_new[0] <= u_escape and y_new[1] < 0.0:
+        elif sign > 0.0 and y_new[0] <= u_escape and y_new[1] < 0.0:
             s_end = _hermite_root(y[0], y_new[0], h * f[0], h * k[5, 0], u_escape)
             end_fate = FATE_ESCAPED
         # Equatorial crossing: mu = cos(theta) changes sign.
@@ -272,13 +289,13 @@ def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
             if s <= s_end:
                 h_c = s * h
                 for _ in range(6):
-                    _dopri_step(y, f, h_c, spin, lam, eta, k_part, y_part, rtol, atol)
+                    _dopri_step(y, f, h_c, spin, lam, eta, sign, k_part, y_part, rtol, atol)
                     if y_part[3] == 0.0 or abs(y_part[2]) < 1e-16:
                         break
                     correction = y_part[2] / y_part[3]
                     h_c = min(max(h_c - correction, 0.0), h)
                     if abs(correction) < 1e-13 * h:
-                        _dopri_step(y, f, h_c, spin, lam, eta, k_part, y_part, rtol, atol)
+                        _dopri_step(y, f, h_c, spin, lam, eta, sign, k_part, y_part, rtol, atol)
                         break
                 r_c = 1.0 / y_part[0]
                 if n_cross < n_record:
@@ -329,7 +346,7 @@ def _trace_one(y0, spin, lam, eta, u_escape, u_capture, rtol, atol, h_initial,
 @njit(cache=True, parallel=True, error_model="numpy")
 def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
                max_steps, max_crossings, n_record, stop_on_disk, r_in, r_out,
-               record_final=False):
+               record_final=False, energy_sign=None):
     """Trace many rays in parallel (one ``prange`` iteration per ray).
 
     Parameters
@@ -358,6 +375,11 @@ def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
     record_final : bool, optional
         Also return each ray's state where it ended (for checks of the first
         integrals; costs 48 bytes per ray).
+    energy_sign : ndarray, shape (N,), optional
+        Sign (+1 or -1) of each ray's conserved energy E (default: all +1).
+        A camera inside the ergoregion sees photons with E < 0; their states
+        are then velocities per |E| (see the module docstring), and they never
+        escape (MTW 1973, sec. 33.8), so ``u_escape`` does not apply to them.
 
     Returns
     -------
@@ -389,7 +411,10 @@ def trace_rays(initial_states, lam, eta, spin, u_escape, u_capture, tolerance,
     atol = tolerance * 1e-3
     for i in prange(n):
         h0 = 1e-3 if initial_states[i, 0] > 0.0 else 1e-2
-        result = _trace_one(initial_states[i], spin, lam[i], eta[i], u_escape, u_capture,
+        sign = 1.0
+        if energy_sign is not None:
+            sign = -1.0 if energy_sign[i] < 0.0 else 1.0
+        result = _trace_one(initial_states[i], spin, lam[i], eta[i], sign, u_escape, u_capture,
                             tolerance, atol, h0, max_steps, max_crossings, n_record,
                             stop_on_disk, r_in, r_out, cross_r, cross_phi, cross_delay,
                             cross_inward, i, record_final, final_state)

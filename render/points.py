@@ -27,8 +27,8 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
     Rays are traced in chunks of ``chunk_rays`` (each chunk one parallel kernel
     call), which bounds the kernel's scratch memory, lets Ctrl-C interrupt a
     long render between chunks, and drives ``progress(done, total)`` if given.
-    Rays of negative conserved energy (``bundle.energy_ratio <= 0``: a camera
-    inside the ergoregion) are not traced and get the fate "unresolved".
+    Rays of negative conserved energy (``bundle.energy_ratio < 0``: a camera
+    inside the ergoregion) are traced with the sign of E passed to the kernel.
     With ``final_state=True`` the dict also holds ``final_state`` (N, 6): the
     state (u, du/dsigma, mu, dmu/dsigma, phi, delay) where each ray ended (see
     :func:`render.geodesics.trace_rays`), for checks of its first integrals.
@@ -37,14 +37,7 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
     u_capture = 1.0 / (r_plus * (1.0 + CAPTURE_MARGIN))
     total = bundle.lam.size
     states = bundle.states
-    negative = ~(np.asarray(bundle.energy_ratio) > 0.0)
-    if np.any(negative):
-        # A camera inside the ergoregion sees photons of negative conserved energy E.
-        # The kernel's states are momenta per unit E, which for E < 0 point into the
-        # photon's future: such rays would be traced the wrong way.  They are not
-        # traced (a non-finite start gives the fate "unresolved" at once).
-        states = np.array(states, dtype=float)
-        states[np.broadcast_to(negative, (total,))] = np.nan
+    energy_sign = energy_signs(bundle)
     names = ("r", "phi", "delay", "inward", "fate", "n_crossings", "steps",
              "theta_end", "phi_end", "final_state")
     parts = {name: [] for name in names}
@@ -57,7 +50,8 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
                 np.ascontiguousarray(bundle.eta[start:stop]), float(spin),
                 float(bundle.u_escape), u_capture, float(tolerance), int(max_steps),
                 int(max_crossings), int(n_record), bool(stop_on_disk), float(r_in),
-                float(r_out), bool(final_state))
+                float(r_out), bool(final_state),
+                np.ascontiguousarray(energy_sign[start:stop]))
         for name, array in zip(names, arrays):
             parts[name].append(array)
         if progress is not None:
@@ -65,6 +59,17 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
     if not final_state:
         del parts["final_state"]
     return {name: np.concatenate(chunks) for name, chunks in parts.items()}
+
+
+def energy_signs(bundle):
+    """Sign (+1.0 or -1.0) of each ray's conserved energy E, from ``bundle.energy_ratio``.
+
+    The observer measures a positive energy E * energy_ratio, so the sign of E is
+    that of ``energy_ratio``; E < 0 happens only for a camera inside the
+    ergoregion (Misner, Thorne & Wheeler 1973, sec. 33.8).
+    """
+    ratio = np.broadcast_to(np.asarray(bundle.energy_ratio, dtype=float), (bundle.lam.size,))
+    return np.where(ratio < 0.0, -1.0, 1.0)
 
 
 def trace_points(alpha, beta, *, spin, inclination_deg, max_orders=3, tolerance=None,

@@ -12,6 +12,18 @@ Which files a still gets, besides the PNG and NPZ of :mod:`render.output`:
 All files are written atomically and never replace an existing file unless
 asked (:func:`render.output.atomic_write`).
 
+Bounded memory
+--------------
+The FITS maps and the 16-bit PNG are written in blocks of rows: of at most one
+tile's rows for a still rendered in tiles (``metadata["tiles"]["rows_per_tile"]``,
+:mod:`render.tiling`), and at most ``STREAM_CHUNK_BYTES`` per block in any case.
+A map of a tiled still is a memory map of a temporary ``.npy`` file; its blocks
+are read from the file by plain reads, so the pages of the whole map are never
+resident at once.  The linear ``.npy`` of a tiled still is copied from its
+temporary file in chunks.  Memory while writing therefore grows with the tile,
+not with the image, and stays within ``tracing.memory_budget`` whatever
+products are asked for.
+
 FITS layout
 -----------
 The primary HDU holds the mode's main map (monochromatic: I_nu; bolometric
@@ -33,10 +45,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .output import atomic_write, check_free
+from .output import STREAM_CHUNK_BYTES, _npy_file, atomic_write, check_free
 
-__all__ = ["product_paths", "write_products", "write_fits", "write_png16", "write_table_csv",
-           "fits_hdus"]
+__all__ = ["product_paths", "write_products", "write_fits", "write_png16", "write_npy",
+           "write_table_csv", "fits_hdus", "read_rows"]
 
 
 def product_paths(scene_document, folder):
@@ -66,10 +78,12 @@ def write_products(result, folder="outputs", overwrite=False):
     if "fits" in paths:
         write_fits(paths["fits"], result, overwrite)
     if "png16" in paths:
-        write_png16(paths["png16"], result.products["pixels16"], overwrite)
-        atomic_write(paths["linear"],
-                     lambda f: np.save(f, np.ascontiguousarray(result.products["rgb_linear"])),
-                     overwrite)
+        pixels16 = result.products["pixels16"]
+        write_png16(paths["png16"], pixels16, overwrite,
+                    block_rows=_block_rows(result, pixels16[:1].nbytes))
+        linear = result.products["rgb_linear"]
+        write_npy(paths["linear"], linear, overwrite,
+                  chunk_bytes=_block_rows(result, linear[:1].nbytes) * linear[:1].nbytes)
     if "spectrum_csv" in paths:
         table = result.tables["spectrum"]
         write_table_csv(paths["spectrum_csv"], table, overwrite,
@@ -99,27 +113,109 @@ def write_table_csv(path, table, overwrite=False, header=None):
     return atomic_write(path, lambda f: f.write(data), overwrite)
 
 
-def write_png16(path, rgb16, overwrite=False):
+def _block_rows(result, row_bytes):
+    """Rows per write block: at most a tile's rows, and at most STREAM_CHUNK_BYTES."""
+    height = result.fate.shape[0]
+    tile_rows = result.metadata.get("tiles", {}).get("rows_per_tile", height)
+    return max(1, min(int(tile_rows), height, STREAM_CHUNK_BYTES // max(int(row_bytes), 1)))
+
+
+def read_rows(array, start, stop, index=None):
+    """Rows ``start:stop`` of ``array`` (of ``array[index]`` if given) as an in-memory array.
+
+    For a memory map of a whole ``.npy`` file (a map of a still rendered in
+    tiles) the rows are read from the file by a plain read, so that only they,
+    not the pages of the whole map, become resident.
+    """
+    source = _npy_file(array)
+    if source is None:
+        part = array if index is None else array[index]
+        return np.asarray(part[start:stop])
+    shape = array.shape if index is None else array.shape[1:]
+    items = int(np.prod(shape[1:], dtype=np.int64))
+    first = start if index is None else index * shape[0] + start
+    block = np.fromfile(source, dtype=array.dtype, count=(stop - start) * items,
+                        offset=array.offset + first * items * array.dtype.itemsize)
+    return block.reshape((stop - start,) + tuple(shape[1:]))
+
+
+def write_npy(path, array, overwrite=False, chunk_bytes=STREAM_CHUNK_BYTES):
+    """Write ``array`` as ``.npy`` atomically, the bytes ``np.save`` would write.
+
+    A memory map of a tile file gets a fresh header, then its data is copied
+    from the file by plain reads of ``chunk_bytes``, so it is never loaded whole.
+    """
+    source = _npy_file(array)
+    if source is None:
+        return atomic_write(path, lambda f: np.save(f, np.ascontiguousarray(array)), overwrite)
+
+    def copy(handle):
+        header = np.lib.format.header_data_from_array_1_0(array)
+        try:
+            np.lib.format.write_array_header_1_0(handle, header)
+        except ValueError:  # np.save's rule: version 2.0 only when 1.0 cannot hold it
+            np.lib.format.write_array_header_2_0(handle, header)
+        remaining = array.nbytes
+        with open(source, "rb") as npy:
+            npy.seek(array.offset)
+            while remaining > 0:
+                piece = npy.read(min(int(chunk_bytes), remaining))
+                if not piece:
+                    raise OSError(f"{source} is shorter than its header says")
+                handle.write(piece)
+                remaining -= len(piece)
+
+    return atomic_write(path, copy, overwrite)
+
+
+# IDAT chunks of about this size (PNG allows the zlib stream to be split across
+# consecutive IDAT chunks, ISO/IEC 15948 sec. 10.1).
+IDAT_BYTES = 1 << 20
+
+
+def write_png16(path, rgb16, overwrite=False, block_rows=None):
     """Write an (H, W, 3) uint16 array as a 16-bit RGB PNG (colour type 2, bit depth 16).
+
+    The rows are filtered (type 0) and compressed ``block_rows`` at a time (default:
+    blocks of at most 16 MB), so memory does not grow with the image.
 
     References
     ----------
-    ISO/IEC 15948:2004 (PNG), sec. 11.2.2 (IHDR) and 11.3.4.5 (sRGB chunk).
+    ISO/IEC 15948:2004 (PNG), sec. 10.1 (IDAT), 11.2.2 (IHDR) and 11.3.4.5 (sRGB chunk).
     """
-    rgb16 = np.ascontiguousarray(rgb16, dtype=">u2")
     height, width, _ = rgb16.shape
-    raw = b"".join(b"\x00" + rgb16[row].tobytes() for row in range(height))
+    row_bytes = 6 * width
+    rows = block_rows or max(1, STREAM_CHUNK_BYTES // max(row_bytes, 1))
 
     def chunk(kind, payload):
         body = kind + payload
         return struct.pack(">I", len(payload)) + body + struct.pack(">I", zlib.crc32(body))
 
-    data = (b"\x89PNG\r\n\x1a\n"
-            + chunk(b"IHDR", struct.pack(">IIBBBBB", width, height, 16, 2, 0, 0, 0))
-            + chunk(b"sRGB", b"\x00")
-            + chunk(b"IDAT", zlib.compress(raw, 6))
-            + chunk(b"IEND", b""))
-    return atomic_write(path, lambda f: f.write(data), overwrite)
+    def write(handle):
+        handle.write(b"\x89PNG\r\n\x1a\n"
+                     + chunk(b"IHDR", struct.pack(">IIBBBBB", width, height, 16, 2, 0, 0, 0))
+                     + chunk(b"sRGB", b"\x00"))
+        compressor = zlib.compressobj(6)
+        pending = []
+        size = 0
+        for start in range(0, height, rows):
+            stop = min(start + rows, height)
+            samples = np.ascontiguousarray(read_rows(rgb16, start, stop), dtype=">u2")
+            filtered = np.zeros((stop - start, 1 + row_bytes), dtype=np.uint8)
+            filtered[:, 1:] = samples.view(np.uint8).reshape(stop - start, row_bytes)
+            del samples
+            piece = compressor.compress(filtered)
+            del filtered
+            if piece:
+                pending.append(piece)
+                size += len(piece)
+            if size >= IDAT_BYTES:
+                handle.write(chunk(b"IDAT", b"".join(pending)))
+                pending, size = [], 0
+        pending.append(compressor.flush())
+        handle.write(chunk(b"IDAT", b"".join(pending)) + chunk(b"IEND", b""))
+
+    return atomic_write(path, write, overwrite)
 
 
 def _main_map(result):
@@ -133,8 +229,12 @@ def _main_map(result):
     return result.intensity, unit
 
 
-def fits_hdus(result):
-    """astropy HDUList of a still's physical maps (see the module doc)."""
+def _fits_layout(result):
+    """[(header, array, index)] of a still's FITS HDUs; the data is ``array[index]``, unflipped.
+
+    The headers are complete (mandatory cards for (H, W) float64 data, EXTEND in
+    the primary one) but no data array of the image's size is made.
+    """
     from astropy.io import fits
 
     from .observing import pixel_angle_rad
@@ -171,21 +271,62 @@ def fits_hdus(result):
             h["EXTNAME"] = extname
         return h
 
-    def flipped(a):
-        return np.ascontiguousarray(np.flipud(np.asarray(a, dtype=np.float64)))
-
-    hdus = [fits.PrimaryHDU(flipped(data), header=header(unit))]
+    layout = [(header(unit), data, None)]
     if "flux_density_jy" in result.products:
-        hdus.append(fits.ImageHDU(flipped(result.products["flux_density_jy"]),
-                                  header=header("Jy/pixel", "FLUXPIX")))
-    hdus.append(fits.ImageHDU(flipped(result.g[0]), header=header("", "REDSHIFT")))
+        layout.append((header("Jy/pixel", "FLUXPIX"), result.products["flux_density_jy"], None))
+    layout.append((header("", "REDSHIFT"), result.g, 0))
+    # A zero-strided stand-in gives astropy the data shape and type for the mandatory
+    # cards (BITPIX, NAXISn, PCOUNT, GCOUNT, EXTEND) without an image-sized array.
+    stand_in = np.broadcast_to(np.float64(0.0), (height, width))
+    hdus = fits.HDUList([fits.PrimaryHDU(stand_in, header=layout[0][0])]
+                        + [fits.ImageHDU(stand_in, header=h) for h, _, _ in layout[1:]])
+    hdus.update_extend()
+    return [(hdu.header, array, index) for hdu, (_, array, index) in zip(hdus, layout)]
+
+
+def fits_hdus(result):
+    """astropy HDUList of a still's physical maps (see the module doc), held in memory."""
+    from astropy.io import fits
+
+    hdus = []
+    for k, (header, array, index) in enumerate(_fits_layout(result)):
+        data = np.asarray(array if index is None else array[index], dtype=np.float64)
+        kind = fits.PrimaryHDU if k == 0 else fits.ImageHDU
+        hdus.append(kind(np.ascontiguousarray(np.flipud(data)), header=header))
     return fits.HDUList(hdus)
 
 
+FITS_BLOCK = 2880  # FITS Standard 4.0, sec. 3.1: headers and data fill 2880-byte blocks
+
+
 def write_fits(path, result, overwrite=False):
-    """Write :func:`fits_hdus` of a still to ``path`` atomically."""
-    hdus = fits_hdus(result)
-    return atomic_write(path, lambda f: hdus.writeto(f), overwrite)
+    """Write the FITS file of a still atomically, each map in blocks of rows.
+
+    Each HDU is its astropy header (padded to 2880 bytes with its END card) and
+    then the map as big-endian IEEE float64, rows flipped so that FITS row 1 is
+    the bottom of the image, zero-padded to a multiple of 2880 bytes -- the
+    bytes astropy's own writer produces for the same data (tests/test_memory.py),
+    without holding a whole map in memory.
+
+    References
+    ----------
+    FITS Standard 4.0 (IAU FITS Working Group 2016), sec. 3.3.2, 4.4.1 and 5.3.
+    """
+    layout = _fits_layout(result)
+    height, width = result.fate.shape
+    rows = _block_rows(result, 8 * width)
+
+    def write(handle):
+        for header, array, index in layout:
+            handle.write(header.tostring().encode("ascii"))
+            for stop in range(height, 0, -rows):
+                start = max(0, stop - rows)
+                block = read_rows(array, start, stop, index)[::-1]
+                handle.write(np.ascontiguousarray(block, dtype=">f8"))
+                del block
+            handle.write(b"\0" * (-(8 * width * height) % FITS_BLOCK))
+
+    return atomic_write(path, write, overwrite)
 
 
 def _plot(path, overwrite, figure_maker, table, metadata):

@@ -99,7 +99,8 @@ def _to_infinity(states, lam, eta, spin, u_capture, tolerance, max_steps, theta_
         theta_out[i] = np.nan
         phi_out[i] = np.nan
         h0 = 1e-3 if states[i, 0] > 0.0 else 1e-2
-        result = _trace_one(states[i], spin, lam[i], eta[i], 0.0, u_capture, tolerance,
+        # Only escaped rays come here, and they have E > 0 (sign +1).
+        result = _trace_one(states[i], spin, lam[i], eta[i], 1.0, 0.0, u_capture, tolerance,
                             tolerance * 1e-3, h0, max_steps, 1 << 30, 0, False, 0.0, 0.0,
                             none_r, none_r, none_r, none_b, 0, False, none_final)
         if result[0] == FATE_ESCAPED:

@@ -11,7 +11,7 @@ from .disk import on_disk, redshift_factor
 from .observing import PER_ORDER_PRODUCTS, prepare_observation, shade
 from .geodesics import FATE_DISK, FATE_NAMES
 from .closed_form import closed_form_bundle, resolve_method
-from .points import trace_bundle
+from .points import energy_signs, trace_bundle
 from .spacetime import horizon_radii, isco_radius
 from .tiling import plan_still, render_in_tiles
 from .sensor import finish_still, needs_sensor, prepare_sky
@@ -181,9 +181,8 @@ def _render_band(scene, observation, rows, progress, maps=True):
         },
         "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": r_in,
         "outer_radius": r_out, "fate_counts": counts,
-        # Counted among the unresolved: see render.points.trace_bundle.
-        "unresolved_negative_energy": int(np.count_nonzero(
-            ~(np.broadcast_to(bundle.energy_ratio, (bundle.lam.size,)) > 0.0))),
+        # Photons of negative conserved energy (a camera inside the ergoregion).
+        "negative_energy_rays": int(np.count_nonzero(energy_signs(bundle) < 0.0)),
         "tracing_method": method,
         # False when the closed form skipped the phi and delay maps (then NaN).
         "phi_delay_maps": bool(maps or method == "integrate"),

@@ -258,7 +258,7 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
             for key, value in meta["fate_counts"].items():
                 counts[key] = counts.get(key, 0) + value
             steps_sum += meta["steps_mean"] * part.fate.size
-            negative += meta.get("unresolved_negative_energy", 0)
+            negative += meta["negative_energy_rays"]
             trace_seconds += meta["trace_seconds"]
             info = _merge_info(info, meta["observing"])
             if metadata is None:
@@ -270,7 +270,7 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
         raise
     metadata.update({
         "fate_counts": counts, "steps_mean": steps_sum / total_rays, "observing": info,
-        "unresolved_negative_energy": negative,
+        "negative_energy_rays": negative,
         "trace_seconds": trace_seconds, "total_seconds": time.perf_counter() - started,
         "tiles": {"count": plan.tiles, "rows_per_tile": plan.rows_per_tile,
                   "memory_budget_gb": plan.budget_bytes / 1e9,

@@ -3,7 +3,10 @@
 The tiling is exact bookkeeping (each band traces the same rays the whole
 image would), so a tiled still must equal the untiled one bit for bit; a tiny
 budget forces many tiles on a small image.  The 8192 x 8192 check runs the
-memory benchmark in a subprocess (slow).
+memory benchmark in a subprocess (slow).  The extra products (FITS, 16-bit
+PNG, linear .npy) of a tiled still are streamed in blocks of a tile's rows: the
+files equal the untiled ones byte for byte, and the memory traced while writing
+them does not grow with the image.
 """
 
 import json
@@ -187,17 +190,183 @@ def test_tile_plan_respects_the_budget_for_any_orders():
             assert all(a[1] == b[0] for a, b in zip(bands, bands[1:]))
 
 
+# --- the extra products of a tiled still ---------------------------------------------------
+
+PRODUCTS = {"observing.mode": "true_colour", "emission.law": "novikov_thorne",
+            "observing.colour_exposure": "fixed", "observing.colour_reference": 1e10,
+            "output.fits": True, "disk.orders": 1, "tracing.tolerance": 1e-6}
+WIDTH = 128
+# 4 rows per tile: render.tiling's model gives 840 bytes per pixel here (true colour,
+# 1 order), and a tile may take a quarter of the budget.
+FOUR_ROW_BUDGET = 4 * WIDTH * 840 / 0.25 + 1
+
+
+# Monochromatic light adds the FLUXPIX extension to the FITS file.
+MONOCHROMATIC = {"observing.mode": "monochromatic", "emission.law": "novikov_thorne",
+                 "observing.frequency": 1e15, "output.fits": True, "disk.orders": 1,
+                 "tracing.tolerance": 1e-6}
+PRODUCT_KINDS = {"true_colour": {"fits", "png16", "linear"}, "monochromatic": {"fits"}}
+
+
+def products_scene(height, mode="true_colour"):
+    values = PRODUCTS if mode == "true_colour" else MONOCHROMATIC
+    return small(**values, **{"image.width": WIDTH, "image.height": height})
+
+
+def png16_rows(path):
+    """Decode a 16-bit RGB PNG by the specification (ISO/IEC 15948: IDAT payloads
+    concatenated form one zlib stream; each row is a filter byte, 0 here, then the
+    big-endian samples)."""
+    import struct
+    import zlib
+
+    raw = path.read_bytes()
+    assert raw[:8] == b"\x89PNG\r\n\x1a\n"
+    position, stream, size = 8, b"", None
+    while position < len(raw):
+        length, kind = struct.unpack(">I4s", raw[position:position + 8])
+        body = raw[position + 8:position + 8 + length]
+        if kind == b"IHDR":
+            width, height, depth, colour = struct.unpack(">IIBB", body[:10])
+            assert (depth, colour) == (16, 2)
+            size = (height, width)
+        elif kind == b"IDAT":
+            stream += body
+        position += 12 + length
+    rows = np.frombuffer(zlib.decompress(stream), dtype=np.uint8).reshape(size[0], -1)
+    assert np.all(rows[:, 0] == 0)
+    return rows[:, 1:].copy().view(">u2").reshape(size[0], size[1], 3)
+
+
+@pytest.mark.parametrize("mode", list(PRODUCT_KINDS))
+def test_extra_products_of_a_tiled_still_equal_the_untiled_ones(mode, tmp_path):
+    from astropy.io import fits
+
+    from render.products import fits_hdus, write_products
+
+    scene = products_scene(96, mode)
+    whole = render_still(scene)
+    tiled = render_still(scene, memory_budget=FOUR_ROW_BUDGET, workdir=tmp_path / "work")
+    try:
+        # (monochromatic needs fewer bytes per pixel: more rows per tile)
+        assert tiled.metadata["tiles"]["count"] > 1
+        whole_paths = write_products(whole, tmp_path / "whole")
+        tiled_paths = write_products(tiled, tmp_path / "tiled")
+    finally:
+        tiled.release()
+    assert set(whole_paths) == PRODUCT_KINDS[mode] == set(tiled_paths)
+    # Streamed from the tile files in blocks of rows, the files are byte for byte those
+    # of the untiled still ...
+    for kind, path in whole_paths.items():
+        assert tiled_paths[kind].read_bytes() == path.read_bytes(), kind
+    # ... and those astropy's own FITS writer and np.save make from whole arrays.
+    import io
+
+    reference = io.BytesIO()
+    fits_hdus(whole).writeto(reference)
+    assert whole_paths["fits"].read_bytes() == reference.getvalue()
+    # Read back by an independent reader, astropy (FITS rows run upwards, FITS
+    # Standard 4.0), and the PNG by its specification.
+    main = (whole.intensity if mode == "true_colour"
+            else whole.products["specific_intensity"])
+    with fits.open(whole_paths["fits"]) as hdus:
+        assert np.array_equal(hdus[0].data, np.flipud(main), equal_nan=True)
+        assert np.array_equal(hdus["REDSHIFT"].data, np.flipud(whole.g[0]), equal_nan=True)
+        if mode == "monochromatic":
+            assert len(hdus) == 3
+            assert np.array_equal(hdus["FLUXPIX"].data,
+                                  np.flipud(whole.products["flux_density_jy"]), equal_nan=True)
+        else:
+            assert len(hdus) == 2
+    if mode == "true_colour":
+        reference = io.BytesIO()
+        np.save(reference, whole.products["rgb_linear"])
+        assert whole_paths["linear"].read_bytes() == reference.getvalue()
+        assert np.array_equal(png16_rows(whole_paths["png16"]), whole.products["pixels16"])
+        assert whole.products["pixels16"].max() > 0
+
+
+def traced_peak_of_writing(scene, folder):
+    """Peak of the memory numpy and Python allocate (tracemalloc) while the products of a
+    tiled still are written, above what was allocated when writing started."""
+    import tracemalloc
+
+    from render.products import write_products
+
+    still = render_still(scene, memory_budget=FOUR_ROW_BUDGET, workdir=folder / "work")
+    try:
+        assert still.metadata["tiles"]["rows_per_tile"] == 4
+        tracemalloc.start()
+        try:
+            write_products(still, folder / "out")
+            return tracemalloc.get_traced_memory()[1]
+        finally:
+            tracemalloc.stop()
+    finally:
+        still.release()
+
+
+def test_memory_for_extra_products_grows_with_the_tile_not_the_image(tmp_path):
+    # numpy reports its array allocations to tracemalloc (common practice), so the
+    # traced peak covers every block read, flipped, converted or filtered.  Four times
+    # the rows with the same tile must not raise it by even a quarter of one float64
+    # map (writing from whole arrays would add at least one such map per FITS
+    # extension: measured ~1.5 maps of growth with the old writers, ~0.002 now).
+    from astropy.io import fits  # noqa: F401  (imported before measuring)
+
+    short = traced_peak_of_writing(products_scene(96), tmp_path / "short")
+    tall = traced_peak_of_writing(products_scene(384), tmp_path / "tall")
+    one_map_growth = WIDTH * (384 - 96) * 8
+    assert tall - short < 0.25 * one_map_growth, (short, tall)
+    # And each peak is a small multiple of a tile's rows of all products, far below
+    # one whole map of the tall image (393 kB): the ~0.3 MB measured is the fixed cost
+    # of astropy's header machinery, so the bound is an absolute 1 MB.
+    assert tall < 1e6
+
+
+def test_interrupted_product_writing_leaves_no_partial_file(tmp_path, monkeypatch):
+    import render.products
+
+    scene = products_scene(48)
+    still = render_still(scene, memory_budget=FOUR_ROW_BUDGET, workdir=tmp_path / "work")
+    original = render.products.read_rows
+    calls = []
+
+    def interrupt(*args, **kwargs):
+        calls.append(args[1:3])
+        # 48 rows in blocks of 4: the FITS file's 2 maps take calls 1-24, the 16-bit
+        # PNG calls 25-36; stop half-way through the PNG.
+        if len(calls) == 30:
+            raise KeyboardInterrupt
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(render.products, "read_rows", interrupt)
+    out = tmp_path / "out"
+    try:
+        with pytest.raises(KeyboardInterrupt):
+            render.products.write_products(still, out)
+    finally:
+        still.release()
+    # The FITS file was finished (it is published only whole); the 16-bit PNG was being
+    # written: neither it nor any temporary part is left.
+    assert len(calls) == 30
+    assert sorted(p.name for p in out.iterdir()) == [f"{scene['name']}.fits"]
+
+
 @pytest.mark.slow
 def test_8192_square_still_stays_under_the_default_budget(tmp_path):
     # Runs the memory benchmark (minutes): peak RSS of the rendering process, which
-    # also writes the PNG and the NPZ, must stay below the 2 GB default budget.
+    # also writes the PNG, the NPZ and every extra product a tiled still can have
+    # (FITS, 16-bit PNG, linear .npy), must stay below the 2 GB default budget.
     run = subprocess.run([sys.executable, str(REPO / "benchmarks" / "bench_memory.py"),
                           "--size", "8192", "--output-dir", str(tmp_path)],
                          capture_output=True, text=True, check=True)
     line = json.loads(run.stdout.strip().splitlines()[-1])
     assert line["width"] == 8192 and line["tiles"] > 1
     assert line["peak_rss_mb"] * 1e6 < line["memory_budget_gb"] * 1e9
-    assert line["files_written"] == ["bench-memory.npz", "bench-memory.png"]
+    assert line["files_written"] == ["bench-memory.fits", "bench-memory.npz",
+                                     "bench-memory.png", "bench-memory_16bit.png",
+                                     "bench-memory_linear.npy"]
 
 
 def test_tiled_still_without_maps_stores_no_nan_maps(tmp_path):

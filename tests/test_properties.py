@@ -136,12 +136,11 @@ def check_end_states(spin, inclination, observer, fov, width, disk, opaque):
     # and every ray that ended has a final state (unresolved ones: their last state).
     assert np.all(np.isfinite(bundle.states)) and np.all(np.isfinite(bundle.eta))
     # A camera just outside the horizon may sit inside the ergoregion: photons of negative
-    # conserved energy are not traced (fate unresolved, no final state; docs/robustness.md).
-    traced = np.broadcast_to(bundle.energy_ratio, bundle.lam.shape) > 0.0
-    assert np.all(raw["fate"][~traced] == 3)
-    final = raw["final_state"][traced]
+    # conserved energy are traced too (with the sign of E), and obey the same integrals
+    # (R and Theta in lam, eta are the same functions for either sign of E; Carter 1968).
+    final = raw["final_state"]
     assert np.all(np.isfinite(final)), final[~np.isfinite(final).all(axis=1)]
-    lam, eta = bundle.lam[traced], bundle.eta[traced]
+    lam, eta = bundle.lam, bundle.eta
     radial, polar, null = carter_residuals(final, lam, eta, spin)
     assert radial.max() <= INTEGRAL_BOUND, radial.max()
     assert polar.max() <= INTEGRAL_BOUND, polar.max()
