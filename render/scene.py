@@ -450,7 +450,8 @@ def _flatten(document, prefix="", depth=0):
     return flat
 
 
-def _nest(values):
+def nest_values(values):
+    """A nested scene document from dotted keys: {'a.b': 1} -> {'a': {'b': 1}}."""
     document = {}
     for path, value in values.items():
         node = document
@@ -554,7 +555,7 @@ def scene_from_dict(document, source="<dict>", default_name="scene"):
     for path, spec in KEYS.items():
         values.setdefault(path, spec.default if path != "name" else default_name)
     _check_consistency(values)
-    return Scene(values=values, source=source, document=_nest(values))
+    return Scene(values=values, source=source, document=nest_values(values))
 
 
 class _StrictLoader(yaml.SafeLoader):
@@ -694,7 +695,7 @@ def default_scene(overrides=(), **values):
     >>> default_scene(**{"black_hole.spin": 0.5}).spin
     0.5
     """
-    document = _nest(values)
+    document = nest_values(values)
     document = apply_overrides(document, overrides)
     return scene_from_dict(document, source="<defaults>", default_name="scene")
 

@@ -172,7 +172,7 @@ def preview_scene(scene):
     >>> quick["image.width"], quick["image.height"], quick["disk.orders"], quick["name"]
     (160, 80, 1, 'scene-preview')
     """
-    from .scene import scene_from_dict
+    from .scene import nest_values, scene_from_dict
 
     values = dict(scene.values)
     width = min(PREVIEW["image.width"], values["image.width"])
@@ -185,14 +185,8 @@ def preview_scene(scene):
     values["output.npz"] = False
     values["output.fits"] = False
     values["name"] = f"{values['name']}-preview"[:100]
-    document = {}
-    for path, value in values.items():
-        node = document
-        parts = path.split(".")
-        for part in parts[:-1]:
-            node = node.setdefault(part, {})
-        node[parts[-1]] = value
-    return scene_from_dict(document, source=scene.source, default_name=values["name"])
+    return scene_from_dict(nest_values(values), source=scene.source,
+                           default_name=values["name"])
 
 
 # --- Anti-aliasing ----------------------------------------------------------------------
