@@ -202,7 +202,8 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
     if not eta > 0.0 and not in_plane:
         # Vortical or pole-grazing: no crossing.  Such rays from infinity have no
         # radial turning point outside the horizon (Gralla & Lupsasca 2020a, from
-        # memory; checked against the integrator in the tests): all are captured.
+        # memory; checked on R with numpy.roots in tests/test_radial_integrals.py,
+        # and by the integrator's fates over whole images): all are captured.
         if real34 and r4 > r_capture:
             return FATE_ESCAPED, 0, np.nan, np.nan
         return FATE_CAPTURED, 0, np.nan, np.nan
