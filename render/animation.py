@@ -42,13 +42,11 @@ import numpy as np
 
 from . import __version__
 from .color import srgb_encode, to_uint8, tone_map
-from .disk import on_disk, redshift_factor
-from .geodesics import FATE_DISK
 from .motion import MotionError, time_dilation, velocity_from_coordinates, zamo_quantities
 from .pattern import emission_time, pattern_factor
 from .scene import SceneError, frame_count, scene_from_dict
 from .spacetime import horizon_radii, keplerian_angular_velocity, metric_functions
-from .still import observer_rays
+from .still import observer_rays, shining_crossings
 
 __all__ = ["FrameJob", "SequencePlan", "plan_sequence", "interpolate", "render_frame",
            "render_sequence", "SequenceResult", "scene_hash", "FRAME_PATTERN"]
@@ -482,16 +480,7 @@ def _shade_traced(scene, job, bundle, raw):
     from .observing import prepare_observation, shade
 
     spin = scene.spin
-    orders = scene["disk.orders"]
-    g = redshift_factor(raw["r"], bundle.lam[:, None], spin, bundle.energy_ratio[:, None])
-    hits = on_disk(raw["r"], scene.inner_radius, scene["disk.outer_radius"])
-    if scene["disk.surface"] == "opaque":
-        # As render_still: only the crossing that ended the ray shines.
-        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
-        keep = np.zeros_like(hits)
-        rows = np.nonzero((raw["fate"] == FATE_DISK) & (raw["n_crossings"] <= orders))[0]
-        keep[rows, last[rows]] = True
-        hits &= keep
+    g, hits = shining_crossings(scene, raw, bundle)
     observation = prepare_observation(scene)
     if scene["pattern.kind"] != "none":
         camera_radius = None if scene["observer.kind"] == "distant" else scene["observer.distance"]

@@ -200,18 +200,34 @@ def blackbody_xyz_sum(temperature, weight):
     return out
 
 
-@njit(cache=True, parallel=True, error_model="numpy")
-def _blackbody_xyz_kernel(t, weight, table, t_min, out):
-    """out[i] = sum_k weight[i, k] XYZ(t[i, k]) by linear interpolation of log XYZ in log T.
+@njit(cache=True, inline="always", error_model="numpy")
+def blackbody_xyz_at_log(table, log_t):
+    """(X, Y, Z) at ln T from :func:`blackbody_xyz_table`, for numba kernels.
 
-    As numpy.interp on the table's nodes; the table is uniform in log T up to
-    rounding, so the node is found from the step and then checked against its
-    neighbours.
+    Linear interpolation of log XYZ in log T on the table's nodes (as numpy.interp);
+    the table is uniform in log T up to rounding, so the node is found from the
+    step and then checked against its neighbours.  Below the table the first node
+    is used; above it the Rayleigh-Jeans scaling X ~ T.
     """
     n = table.shape[0]
     first = table[0, 0]
     last = table[n - 1, 0]
-    step = (last - first) / (n - 1)
+    clipped = min(max(log_t, first), last)
+    j = min(max(int((clipped - first) / ((last - first) / (n - 1))), 0), n - 2)
+    while j > 0 and clipped < table[j, 0]:
+        j -= 1
+    while j < n - 2 and clipped > table[j + 1, 0]:
+        j += 1
+    u = (clipped - table[j, 0]) / (table[j + 1, 0] - table[j, 0])
+    scale = math.exp(log_t - last) if log_t > last else 1.0
+    return (scale * math.exp(table[j, 1] + u * (table[j + 1, 1] - table[j, 1])),
+            scale * math.exp(table[j, 2] + u * (table[j + 1, 2] - table[j, 2])),
+            scale * math.exp(table[j, 3] + u * (table[j + 1, 3] - table[j, 3])))
+
+
+@njit(cache=True, parallel=True, error_model="numpy")
+def _blackbody_xyz_kernel(t, weight, table, t_min, out):
+    """out[i] = sum_k weight[i, k] XYZ(t[i, k]); 0 for T < t_min, NaN T or NaN weight."""
     for i in prange(t.shape[0]):
         x_sum = 0.0
         y_sum = 0.0
@@ -221,19 +237,10 @@ def _blackbody_xyz_kernel(t, weight, table, t_min, out):
             wk = weight[i, k]
             if not ti >= t_min or wk != wk:   # NaN or too cold to see
                 continue
-            log_t = math.log(ti)
-            clipped = min(log_t, last)
-            j = min(max(int((clipped - first) / step), 0), n - 2)
-            while j > 0 and clipped < table[j, 0]:
-                j -= 1
-            while j < n - 2 and clipped > table[j + 1, 0]:
-                j += 1
-            u = (clipped - table[j, 0]) / (table[j + 1, 0] - table[j, 0])
-            # Above the table, the Rayleigh-Jeans scaling X ~ T.
-            scale = wk * (math.exp(log_t - last) if log_t > last else 1.0)
-            x_sum += scale * math.exp(table[j, 1] + u * (table[j + 1, 1] - table[j, 1]))
-            y_sum += scale * math.exp(table[j, 2] + u * (table[j + 1, 2] - table[j, 2]))
-            z_sum += scale * math.exp(table[j, 3] + u * (table[j + 1, 3] - table[j, 3]))
+            x, y, z = blackbody_xyz_at_log(table, math.log(ti))
+            x_sum += wk * x
+            y_sum += wk * y
+            z_sum += wk * z
         out[i, 0] = x_sum
         out[i, 1] = y_sum
         out[i, 2] = z_sum

@@ -204,8 +204,6 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         # radial turning point outside the horizon (Gralla & Lupsasca 2020a, from
         # memory; checked on R with numpy.roots in tests/test_radial_integrals.py,
         # and by the integrator's fates over whole images): all are captured.
-        if real34 and r4 > r_capture:
-            return FATE_ESCAPED, 0, np.nan, np.nan
         return FATE_CAPTURED, 0, np.nan, np.nan
 
     # --- radial motion: class, elliptic parameter, sigma(X) and its end ----------
@@ -462,7 +460,7 @@ def closed_form_crossings(alpha, beta, phi_o, spin, sin_o, cos_o, r_capture, max
     phi_end = np.full(n, np.nan)
     root = math.sqrt(1.0 - spin * spin)
     r_plus = 1.0 + root
-    r_minus = 1.0 - root
+    r_minus = spin * spin / r_plus   # = 1 - root, without its cancellation at small spin
     scratch = np.empty((n, _SCRATCH))
     for i in prange(n):
         result = _one_ray(alpha[i], beta[i], spin, sin_o, cos_o, phi_o[i], r_plus, r_minus,

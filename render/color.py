@@ -10,6 +10,8 @@ edge.  The display value is then encoded with the sRGB transfer function
 (IEC 61966-2-1) and quantised to 8 bits.
 """
 
+import math
+
 import numpy as np
 from numba import njit, prange
 
@@ -51,7 +53,7 @@ def srgb_encode(linear):
 @njit(cache=True, parallel=True, error_model="numpy")
 def _srgb_kernel(v, out):
     for i in prange(v.size):
-        x = min(max(v[i], 0.0), 1.0)   # NaN -> 0 (max(NaN, 0) is 0 here)
+        x = min(max(v[i], 0.0), 1.0)   # NaN stays NaN (as numpy.clip), then 8-bit 0
         out[i] = 12.92 * x if x <= 0.0031308 else 1.055 * x ** (1.0 / 2.4) - 0.055
 
 
@@ -90,7 +92,8 @@ def _matrix_kernel(v, matrix, out):
 def desaturate_into_gamut(rgb):
     """Bring negative linear-sRGB components to 0 by mixing in grey of the same luminance.
 
-    A pixel outside the sRGB gamut (some channel < 0) is replaced by
+    NaN and infinite channels count as 0.  A pixel outside the sRGB gamut (some
+    channel < 0) is replaced by
     Y + s (RGB - Y) with the largest s in [0, 1] that makes every channel >= 0,
     where Y = 0.2126 R + 0.7152 G + 0.0722 B (IEC 61966-2-1) is kept: hue is
     kept, saturation reduced.  In-gamut pixels are unchanged.
@@ -103,11 +106,11 @@ def desaturate_into_gamut(rgb):
 
 @njit(cache=True, parallel=True, error_model="numpy")
 def _gamut_kernel(rgb, scale, limit, out):
-    """Per pixel: NaN -> 0, desaturate into gamut, times ``scale``; if ``limit``, top <= 1."""
+    """Per pixel: non-finite -> 0, desaturate into gamut, times ``scale``; if ``limit``, top <= 1."""
     for i in prange(rgb.shape[0]):
-        r = rgb[i, 0] if rgb[i, 0] == rgb[i, 0] else 0.0
-        g = rgb[i, 1] if rgb[i, 1] == rgb[i, 1] else 0.0
-        b = rgb[i, 2] if rgb[i, 2] == rgb[i, 2] else 0.0
+        r = rgb[i, 0] if math.isfinite(rgb[i, 0]) else 0.0
+        g = rgb[i, 1] if math.isfinite(rgb[i, 1]) else 0.0
+        b = rgb[i, 2] if math.isfinite(rgb[i, 2]) else 0.0
         low = min(r, g, b)
         if low < 0.0:
             luminance = max(0.2126 * r + 0.7152 * g + 0.0722 * b, 0.0)

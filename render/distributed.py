@@ -207,7 +207,8 @@ def _still_band_task(scene, rows, threads):
 
     count = threads.get(get_worker().address, 1)
     numba.set_num_threads(max(1, min(int(count), numba.config.NUMBA_NUM_THREADS)))
-    return _render_band(scene, prepare_observation(scene), rows, None)
+    return _render_band(scene, prepare_observation(scene), rows, None,
+                        bool(scene["output.npz"]))
 
 
 def render_still_on_cluster(scene, address, *, workdir=None, progress=None, bands_per_worker=4):

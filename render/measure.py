@@ -509,7 +509,7 @@ def measure_scene(scene, tolerances=None, result=None):
     analytic, curve, distance = _analytic(scene)
     check_field_of_view(scene, curve)
     if result is None:
-        result = render_still(scene)
+        result = render_still(scene, maps=False)   # the fates are all it needs
     width, height = scene["image.width"], scene["image.height"]
     h = scene["observer.field_of_view"] / width
     captured = result.fate == FATE_CAPTURED

@@ -190,6 +190,11 @@ def real_time(x, s, c, d, r, k, n, r1, r2, r3, r4, spin, lam, r_plus, r_minus, d
 
 # --- complex r3, r4 -----------------------------------------------------------------
 
+# Below this relative distance r_- and r2 count as one root (see complex_time): the
+# substitution then errs by ~1e-9 relative, the Moebius form near it by about as much.
+_SAME_ROOT = 1e-9
+
+
 @njit(cache=True, inline="always")
 def _mobius_char(alpha, k):
     """Characteristic for int dX/(1 + alpha cn): nn = alpha^2/(alpha^2 - 1) if < 1, else k/nn."""
@@ -258,24 +263,30 @@ def complex_time(x, s, c, d, r, k, r1, r2, big_a, big_b, c_a, c_b, c_c, c_d, spi
     p_plus = c_c - r_plus * c_a
     alpha_plus = (c_d - r_plus * c_b) / p_plus
     p_minus = c_c - r_minus * c_a
-    alpha_minus = (c_d - r_minus * c_b) / p_minus
+    alpha_minus = (c_d - r_minus * c_b) / p_minus if p_minus != 0.0 else 0.0
     alpha_inf = c_b / c_a
+    # r_- = r2 (both ~a^2/2 at small spin) makes alpha_- = -1 and its Moebius form
+    # degenerate; 1/(r - r_-) = 1/(r - r2) then, to O(|r_- - r2| / (r_+ - r2)).
+    minus_is_r2 = abs(r_minus - r2) <= _SAME_ROOT * (1.0 + r2)
+    use_minus = spin != 0.0 and not minus_is_r2
     v_plus, v_minus, v_inf, v_d = third_kind_set(
-        _mobius_char(alpha_plus, k), _mobius_char(alpha_minus, k) if spin != 0.0 else 0.0,
+        _mobius_char(alpha_plus, k), _mobius_char(alpha_minus, k) if use_minus else 0.0,
         _mobius_char(alpha_inf, k), s, c, d, k)
     j_plus = _mobius_integral(c_a, c_b, alpha_plus, x, s, c, d, k, v_plus, False,
                               0.0) / p_plus
+    # int dX / (r - r2), with int dX / (1 - cn) = k D - (1 + cn) dn / sn.
+    j2 = (-c_b * x + 2.0 * big_b * (k * v_d - (1.0 + c) * d / s)) / (big_a * r21)
     j_minus = 0.0
-    if spin != 0.0:
+    if use_minus:
         j_minus = _mobius_integral(c_a, c_b, alpha_minus, x, s, c, d, k, v_minus, False,
                                    0.0) / p_minus
+    elif spin != 0.0:
+        j_minus = j2
     phi_part = a_plus * j_plus + a_minus * j_minus
     # At infinity ln|1 + alpha cn| = ln|c_c + c_d cn| - ln|c_a| - ln r; ln r is dropped.
     log_pole = math.log(abs(c_c + c_d * c)) - math.log(abs(c_a)) if at_infinity else 0.0
     i_r = _mobius_integral(c_c, c_d, alpha_inf, x, s, c, d, k, v_inf, at_infinity,
                            log_pole) / c_a
-    # int dX / (1 - cn) = k D - (1 + cn) dn / sn.
-    j2 = (-c_b * x + 2.0 * big_b * (k * v_d - (1.0 + c) * d / s)) / (big_a * r21)
     y = ((r2 * r2 + c0) * x + 0.5 * r21 * big_a * big_a * j2 + 2.0 * i_r + b_plus * j_plus
          + b_minus * j_minus)
     if at_infinity:

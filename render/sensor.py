@@ -177,10 +177,13 @@ def preview_scene(scene):
     values = dict(scene.values)
     width = min(PREVIEW["image.width"], values["image.width"])
     values["image.height"] = max(1, round(values["image.height"] * width / values["image.width"]))
+    looser = max(values["tracing.tolerance"], PREVIEW["tracing.tolerance"])
+    orders = min(values["disk.orders"], PREVIEW["disk.orders"])
     values.update(PREVIEW)
     values["image.width"] = width
-    values["disk.orders"] = min(values["disk.orders"], PREVIEW["disk.orders"])
-    values["tracing.tolerance"] = max(values["tracing.tolerance"], PREVIEW["tracing.tolerance"])
+    values["disk.orders"] = orders
+    values["tracing.tolerance"] = looser   # a looser tolerance of the scene's own is kept
+    values["output.png"] = True
     values["image.preview"] = False
     values["output.npz"] = False
     values["output.fits"] = False

@@ -60,6 +60,7 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit, prange
 
+from .cie import blackbody_xyz_at_log
 from .geodesics import FATE_ESCAPED, _trace_one, deferred_interrupts
 
 __all__ = ["SKY_KINDS", "StarField", "inverse_magnification", "escape_directions", "sky_vectors", "load_panorama",
@@ -402,15 +403,8 @@ def _solid_angle(ax, ay, az, bx, by, bz, cx, cy, cz):
 
 @njit(cache=True, inline="always")
 def _blackbody_xyz(table, log_t, out):
-    """XYZ of a blackbody from the (log T, log X, log Y, log Z) table, linear in log T."""
-    n = table.shape[0]
-    step = (table[n - 1, 0] - table[0, 0]) / (n - 1)
-    x = (log_t - table[0, 0]) / step
-    x = min(max(x, 0.0), n - 1.000001)
-    k = int(x)
-    f = x - k
-    for c in range(3):
-        out[c] = math.exp((1.0 - f) * table[k, c + 1] + f * table[k + 1, c + 1])
+    """XYZ of a blackbody at ln T into ``out`` (:func:`render.cie.blackbody_xyz_at_log`)."""
+    out[0], out[1], out[2] = blackbody_xyz_at_log(table, log_t)
 
 
 @njit(cache=True, error_model="numpy")

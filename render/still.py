@@ -14,7 +14,7 @@ from .closed_form import closed_form_bundle, resolve_method
 from .points import energy_signs, trace_bundle
 from .spacetime import horizon_radii, isco_radius
 from .tiling import plan_still, render_in_tiles
-from .sensor import finish_still, needs_sensor, prepare_sky
+from .sensor import check_untiled, finish_still, needs_sensor, prepare_sky, preview_scene
 
 __all__ = ["StillResult", "render_still", "observer_rays", "trace_and_shade"]
 
@@ -118,9 +118,14 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps
     produces them anyway; the closed form (``tracing.method``) skips them when they
     are not asked for, and they are then NaN.  The image needs neither.
     """
+    if scene["image.preview"]:
+        scene = preview_scene(scene)   # as `nullray still --preview`
     if maps is None:
         maps = bool(scene["output.npz"])
     plan = plan_still(scene, memory_budget)
+    # A budget given here (not the scene's) may call for tiles that a sky or
+    # supersampling cannot use: refuse before any tracing, as the scene check does.
+    check_untiled(scene.values, plan)
     # Emission law and observing mode first: a bad profile table fails before any tracing.
     observation = prepare_observation(scene)
     if needs_sensor(scene):
@@ -200,7 +205,8 @@ def _render_band(scene, observation, rows, progress, maps=True):
 
 
 def _traced_and_shaded(scene, observation, x, y, bundle):
-    raw, _, _, shaded = trace_and_shade(scene, observation, x, y, bundle)
+    # Extra rays (supersampling) feed only the picture: no phi/delay maps needed.
+    raw, _, _, shaded = trace_and_shade(scene, observation, x, y, bundle, maps=False)
     return raw, shaded
 
 
@@ -230,15 +236,24 @@ def trace_and_shade(scene, observation, alpha, beta, bundle, progress=None, maps
                            max_crossings=scene["tracing.max_crossings"],
                            stop_on_disk=opaque, r_in=r_in, r_out=r_out, progress=progress,
                            final_state=scene["sky.kind"] != "none")
-    g = redshift_factor(raw["r"], bundle.lam[:, None], spin, bundle.energy_ratio[:, None])
-    hits = on_disk(raw["r"], r_in, r_out)
-    if opaque:
-        # Only the crossing that ended the ray shines; earlier ones missed the disk.
-        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
-        ended_on_disk = raw["fate"] == FATE_DISK
-        keep = np.zeros_like(hits)
-        rows = np.nonzero(ended_on_disk & (raw["n_crossings"] <= orders))[0]
-        keep[rows, last[rows]] = True
-        hits &= keep
+    g, hits = shining_crossings(scene, raw, bundle)
     shaded = shade(observation, scene, raw, g, hits, bundle)
     return raw, g, hits, shaded
+
+
+def shining_crossings(scene, raw, bundle):
+    """(g, hits) of traced rays: redshift factors and the crossings that shine, (N, orders).
+
+    A crossing shines if it lies on the disk; for an opaque disk only the one that
+    ended the ray does (earlier ones missed the disk).
+    """
+    orders = scene["disk.orders"]
+    g = redshift_factor(raw["r"], bundle.lam[:, None], scene.spin, bundle.energy_ratio[:, None])
+    hits = on_disk(raw["r"], scene.inner_radius, scene["disk.outer_radius"])
+    if scene["disk.surface"] == "opaque":
+        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
+        keep = np.zeros_like(hits)
+        rows = np.nonzero((raw["fate"] == FATE_DISK) & (raw["n_crossings"] <= orders))[0]
+        keep[rows, last[rows]] = True
+        hits &= keep
+    return g, hits

@@ -274,3 +274,15 @@ def test_a_sequence_frame_of_a_resting_camera_matches_the_still():
     assert (still.pixels != render_still(default_scene(**{
         **{k: scene[k] for k in ("image.width", "image.height", "observer.field_of_view")},
         "sky.kind": "none"})).pixels).any()
+
+
+def test_preview_keeps_a_looser_tolerance_and_the_api_honours_the_flag():
+    from render.sensor import preview_scene
+
+    loose = preview_scene(default_scene(**{"tracing.tolerance": 1e-4, "output.png": False}))
+    assert loose["tracing.tolerance"] == 1e-4 and loose["output.png"]
+    tight = preview_scene(default_scene(**{"tracing.tolerance": 1e-10}))
+    assert tight["tracing.tolerance"] == 1e-6
+    # render_still applies image.preview itself (as the command line does).
+    still = render_still(default_scene(**{"image.preview": True}))
+    assert still.intensity.shape == (160, 160) and still.r.shape[0] == 1
