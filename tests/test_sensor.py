@@ -286,3 +286,13 @@ def test_preview_keeps_a_looser_tolerance_and_the_api_honours_the_flag():
     # render_still applies image.preview itself (as the command line does).
     still = render_still(default_scene(**{"image.preview": True}))
     assert still.intensity.shape == (160, 160) and still.r.shape[0] == 1
+
+
+def test_supersampled_still_under_a_small_budget_is_refused_before_tracing(no_tracing):
+    # A budget given to render_still (not the scene's) that would need tiles: refused
+    # with the one-line SceneError before the kernel runs.
+    from render.scene import SceneError
+
+    scene = default_scene(**{"image.width": 64, "image.height": 48, "image.supersampling": 2})
+    with pytest.raises(SceneError, match="supersampling"):
+        render_still(scene, memory_budget=6e5)
