@@ -396,3 +396,30 @@ def test_tiled_sensor_still_without_its_halo_would_differ(monkeypatch, tmp_path)
                 < whole.metadata["observing"]["sky"]["star_images"])
     finally:
         alone.release()
+
+
+def test_tiled_still_with_a_panorama_and_full_supersampling_equals_the_untiled_one(tmp_path):
+    # The other sky and the other refinement path: a panorama looked up per ray, every
+    # pixel refined (image.adaptive off).  The bands' sample counts must add up to n^2 per
+    # pixel of the whole image (a band counts its own rows, not its halo).  Same rays:
+    # identical pixels and samples, composite to 1e-12 relative (summation order only).
+    from render.sky import sample_panorama_image
+
+    Image.fromarray(sample_panorama_image(32, seed=4)).save(tmp_path / "sky.png")
+    scene = default_scene(**{"image.width": 40, "image.height": 40, "sky.kind": "image",
+                             "sky.image": str(tmp_path / "sky.png"), "sky.brightness": 2.0,
+                             "observer.distance": 40.0, "observer.field_of_view": 60.0,
+                             "image.supersampling": 2, "image.adaptive": False})
+    whole = render_still(scene)
+    tiled = render_still(scene, memory_budget=_three_row_budget(scene), workdir=tmp_path)
+    try:
+        assert tiled.metadata["tiles"]["count"] > 1
+        assert np.array_equal(tiled.pixels, whole.pixels)
+        assert np.array_equal(tiled.products["samples"], whole.products["samples"])
+        assert (whole.products["samples"] == 4).all()
+        assert np.allclose(tiled.products["composite"], whole.products["composite"],
+                           rtol=1e-12, atol=0.0)
+        assert (tiled.metadata["observing"]["antialias"]["samples_total"]
+                == 4 * 40 * 40)
+    finally:
+        tiled.release()
