@@ -50,7 +50,8 @@ import numpy as np
 from .geodesics import FATE_ESCAPED
 
 __all__ = ["FILTERS", "SENSOR_MODES", "check_sensor", "prepare_sky", "needs_sensor",
-           "subpixel_offsets", "refine_mask", "finish_still", "preview_scene", "PREVIEW"]
+           "check_untiled", "halo_rows", "HALO_ROWS", "subpixel_offsets", "refine_mask",
+           "finish_still", "preview_scene", "PREVIEW"]
 
 FILTERS = ("box", "tent")
 SENSOR_MODES = ("bolometric", "true_colour")
@@ -89,13 +90,45 @@ def check_sensor(values):
 
 
 def check_untiled(values, plan):
-    """A sky or supersampling needs the whole image at once (neighbouring rows)."""
-    if plan.tiles > 1 and (values["sky.kind"] != "none" or values["image.supersampling"] > 1):
+    """A sky or supersampling in tiles needs shading that is per pixel (a fixed white).
+
+    Each band is then traced with a halo of neighbouring rows (:func:`halo_rows`),
+    so it equals the untiled render.  :func:`render.tiling.check_memory` already
+    refuses a still that needs tiles but shades the whole image at once (the
+    automatic colour exposure); this is the same rule, kept for callers that
+    plan on their own.
+    """
+    from .tiling import is_tileable
+
+    if (plan.tiles > 1 and (values["sky.kind"] != "none" or values["image.supersampling"] > 1)
+            and not is_tileable(values)):
         raise _scene_error(
             f"image.width x image.height = {values['image.width']} x {values['image.height']} "
             f"does not fit tracing.memory_budget = {values['tracing.memory_budget']:g} GB "
-            "untiled, and a sky or image.supersampling needs the whole image at once; use a "
-            "smaller image or a larger budget")
+            "untiled, and its exposure needs the whole image at once; use a fixed colour "
+            "exposure, a smaller image or a larger budget")
+
+
+# Rows of neighbours a band of a tiled still is traced with, above and below its own.
+# The refinement mask compares a pixel with its 4-neighbours (one row); a star image
+# lands in a pixel from the cells (row pairs) above and below it, and those cells use
+# the lens map's Jacobian at their corners, a central difference over one more row:
+# two rows.  The haloed band starts on an even image row, so that the star kernel's
+# two passes (even and odd cell rows) add into each pixel in the untiled order.
+HALO_ROWS = 2
+
+
+def halo_rows(rows, height):
+    """The rows (first, stop) to trace for the band ``rows = (start, stop)`` of a tiled still.
+
+    Examples
+    --------
+    >>> halo_rows((5, 9), 12), halo_rows((0, 4), 12), halo_rows((8, 12), 12)
+    ((2, 11), (0, 6), (6, 12))
+    """
+    start, stop = rows
+    first = max(0, start - HALO_ROWS - start % 2)
+    return first, min(height, stop + HALO_ROWS)
 
 
 @dataclass
@@ -335,7 +368,7 @@ def _rays_at(scene, x, y, velocity=None):
                        scene["observer.frame"], velocity=velocity)
 
 
-def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, rows=None,
+def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, own=None,
                  white=None, velocity=None):
     """Composite sky and disk, supersample, add stars; return the updated Shaded.
 
@@ -354,8 +387,12 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
         ``trace(x, y, bundle) -> (raw, shaded)``: traces and shades the extra
         rays of image-plane points (x, y) as the centre rays were
         (:func:`render.still.trace_and_shade`); only used with supersampling.
-    rows : (start, stop), optional
-        A band of rows: refused (a sky and supersampling need neighbouring rows).
+    own : (start, stop), optional
+        Rows of the given arrays that are the band's own (a band of a tiled
+        still traced with a halo of neighbouring rows, :func:`halo_rows`): only
+        they are refined and counted, and only their values are meant to be
+        kept; the halo rows give them the neighbours they have untiled.
+        Default: all rows.
     white : float, optional
         The exposure's white (default: the still's own, as the observing mode sets it;
         a sequence passes its one white for all frames).
@@ -364,10 +401,14 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
     """
     from .sky import camera_vectors, escape_directions, sky_vectors, splat_stars
 
-    if rows is not None:
-        raise _scene_error("a sky or image.supersampling needs the whole image at once; it "
-                           "cannot be rendered in bands of rows (tiles or --scheduler)")
     height, width = alpha.shape
+    lo, hi = (0, height) if own is None else own
+    if (lo, hi) != (0, height):
+        from .tiling import is_tileable
+
+        if not is_tileable(scene.values):
+            raise _scene_error("observing.colour_exposure = 'auto' needs the whole image at "
+                               "once; a band of rows cannot be finished alone")
     sky = prepare_sky(scene)
     white = _white(observation, scene, shaded) if white is None else float(white)
     tolerance = scene["tracing.tolerance"]
@@ -391,6 +432,8 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
             mask = refine_mask(fate, crossings, display, scene["image.refine_threshold"])
         else:
             mask = np.ones((height, width), dtype=bool)
+        mask[:lo] = False   # a halo row is only a neighbour here
+        mask[hi:] = False
         chosen = np.nonzero(mask.ravel())[0]
         offsets = subpixel_offsets(n, scene["image.filter"])
         roll = math.radians(scene["observer.roll"])
@@ -413,8 +456,9 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
         info["antialias"] = {
             "supersampling": n, "filter": scene["image.filter"],
             "adaptive": scene["image.adaptive"], "pixels_refined": int(chosen.size),
-            "pixels": int(height * width), "samples_total": int(samples.sum()),
-            "samples_per_pixel_mean": float(samples.mean()),
+            "pixels": int((hi - lo) * width),
+            "samples_total": int(samples[lo * width:hi * width].sum()),
+            "samples_per_pixel_mean": float(samples[lo * width:hi * width].mean()),
             "data_maps": "evaluated at pixel centres; only 'composite' and the picture are "
                          "supersampled"}
     if sky.kind != "none":
@@ -431,14 +475,16 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ro
             g = np.broadcast_to(np.asarray(bundle.energy_ratio, dtype=float),
                                 theta.shape).reshape(height, width)
             colour = observation.mode == "true_colour"
-            flux, images, skipped = splat_stars(sky.stars, directions, cam, g, colour=colour)
+            # A band counts the skipped triangles of its own cell rows only (cells lo..hi-1).
+            flux, images, skipped = splat_stars(sky.stars, directions, cam, g, colour=colour,
+                                                cells=(lo, hi))
             # Drawn as flux per pixel (a point source has no surface brightness to keep).
             composite += (flux * scene["sky.star_brightness"] * white).reshape(
                 height * width, -1)
             sky_info.update({"star_brightness": scene["sky.star_brightness"],
                              "stars": len(sky.stars), "star_density_per_deg2":
                              scene["sky.star_density"], "seed": scene["sky.seed"],
-                             "star_images": float(images.sum()),
+                             "star_images": float(images[lo:hi].sum()),
                              "sky_triangles_skipped": skipped,
                              "magnitudes": "0 to 8, dN/dm ~ 10^(0.6 m)"})
         info["sky"] = sky_info

@@ -565,7 +565,7 @@ def _splat(sky, cam, g, det, ok, stars, flux, log_t, order, starts, colour, tabl
                     skipped[j] += _splat_triangle(corner_sky, corner_cam, corner_px, corner_g,
                                                   corner_det, stars, flux, log_t, order, starts, colour,
                                                   table, out, counts, j, i)
-    return skipped.sum()
+    return skipped
 
 
 def inverse_magnification(sky, cam, ok=None):
@@ -587,7 +587,7 @@ def inverse_magnification(sky, cam, ok=None):
     return sky_area / cam_area
 
 
-def splat_stars(stars, sky, cam, g, colour=False):
+def splat_stars(stars, sky, cam, g, colour=False, cells=None):
     """Images of point-source stars on a pixel grid, with their lensing magnification.
 
     Parameters
@@ -605,6 +605,11 @@ def splat_stars(stars, sky, cam, g, colour=False):
     colour : bool
         False: one channel, bolometric flux g^4 mu F.  True: CIE XYZ of a
         blackbody at g T with rest luminance Y = F, times mu (three channels).
+    cells : (start, stop), optional
+        Count skipped triangles only in the cell rows start..stop - 1 (cell row j
+        lies between pixel rows j and j + 1): a band of rows traced with a halo
+        of neighbouring rows counts only its own cells, so the bands' counts add
+        up to the whole image's.
 
     Returns
     -------
@@ -639,4 +644,6 @@ def splat_stars(stars, sky, cam, g, colour=False):
                          np.log(np.ascontiguousarray(stars.temperature, dtype=float)),
                          order, starts.astype(np.int64), bool(colour),
                          np.ascontiguousarray(blackbody_xyz_table()), out, counts)
-    return out, counts, int(skipped)
+    if cells is not None:
+        skipped = skipped[cells[0]:cells[1]]
+    return out, counts, int(skipped.sum())

@@ -1,5 +1,6 @@
 """Rendering one still: scene -> camera -> geodesics (+ disk) -> emission -> arrays."""
 
+import dataclasses
 import time
 from dataclasses import dataclass, field
 
@@ -14,7 +15,8 @@ from .closed_form import closed_form_bundle, resolve_method
 from .points import energy_signs, trace_bundle
 from .spacetime import horizon_radii, isco_radius
 from .tiling import plan_still, render_in_tiles
-from .sensor import check_untiled, finish_still, needs_sensor, prepare_sky, preview_scene
+from .sensor import (check_untiled, finish_still, halo_rows, needs_sensor, prepare_sky,
+                     preview_scene)
 
 __all__ = ["StillResult", "render_still", "observer_rays", "trace_and_shade"]
 
@@ -147,16 +149,43 @@ def _render_band(scene, observation, rows, progress, maps=True):
     orders = scene["disk.orders"]
     spin = scene.spin
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
-    alpha, beta, bundle = observer_rays(scene, rows)
+    sensor = needs_sensor(scene)
+    # A band with a sky or supersampling is traced with a halo of neighbouring rows
+    # (render.sensor.halo_rows), so that its refinement and star images see the
+    # neighbours they see untiled; only the band's own rows are kept.
+    traced_rows = halo_rows(rows, scene["image.height"]) if sensor and rows is not None else rows
+    alpha, beta, bundle = observer_rays(scene, traced_rows)
     method = resolve_method(scene["tracing.method"], scene["observer.kind"])
-    raw, g, hits, shaded = trace_and_shade(scene, observation, alpha, beta, bundle, progress,
-                                           maps)
+    band_progress = progress
+    if progress is not None and traced_rows != rows:
+        traced_total = alpha.size
+
+        def band_progress(done, total):   # the halo's rays are not counted twice
+            progress(done * height * width // traced_total, height * width)
+    raw, g, hits, shaded = trace_and_shade(scene, observation, alpha, beta, bundle,
+                                           band_progress, maps)
     traced = time.perf_counter()
-    if needs_sensor(scene):
+    if sensor:
         # The sky behind the disk, supersampling and stars (render.sensor).
+        own = None if traced_rows == rows else (rows[0] - traced_rows[0],
+                                                rows[1] - traced_rows[0])
         shaded = finish_still(scene, observation, shaded, raw, bundle, alpha, beta,
                               lambda x, y, more: _traced_and_shaded(scene, observation, x, y,
-                                                                    more), rows=rows)
+                                                                    more), own=own)
+    negative = energy_signs(bundle) < 0.0
+    if traced_rows != rows:
+        keep = slice(own[0] * width, own[1] * width)
+        n_traced = alpha.size
+
+        def cut(a):
+            return a[keep] if isinstance(a, np.ndarray) and a.ndim and len(a) == n_traced else a
+
+        raw = {name: cut(a) for name, a in raw.items()}
+        g, hits, negative = cut(g), cut(hits), cut(negative)
+        shaded = dataclasses.replace(
+            shaded, intensity=cut(shaded.intensity), pixels=cut(shaded.pixels),
+            products={name: cut(a) for name, a in shaded.products.items()})
+        alpha, beta = alpha[own[0]:own[1]], beta[own[0]:own[1]]
     intensity, pixels = shaded.intensity, shaded.pixels
 
     def image(a):
@@ -187,7 +216,7 @@ def _render_band(scene, observation, rows, progress, maps=True):
         "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": r_in,
         "outer_radius": r_out, "fate_counts": counts,
         # Photons of negative conserved energy (a camera inside the ergoregion).
-        "negative_energy_rays": int(np.count_nonzero(energy_signs(bundle) < 0.0)),
+        "negative_energy_rays": int(np.count_nonzero(negative)),
         "tracing_method": method,
         # False when the closed form skipped the phi and delay maps (then NaN).
         "phi_delay_maps": bool(maps or method == "integrate"),

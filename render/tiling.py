@@ -11,9 +11,12 @@ reads, so writing does not pull them into memory either.  Call
 :meth:`render.still.StillResult.release` (the command line does) to delete the
 temporary folder.
 
-Shading that needs the whole image at once (the automatic exposure of
-``true_colour``, the disk-integrated ``spectrum`` and the ``line`` profile)
-cannot be tiled: such a still must fit in the budget untiled, or it is
+A still with a sky or supersampling traces each band with a halo of up to
+five neighbouring rows (:func:`render.sensor.halo_rows`), so that its
+adaptive refinement and star images equal the untiled ones; the tile's memory
+counts them.  Shading that needs the whole image at once (the automatic
+exposure of ``true_colour``, the disk-integrated ``spectrum`` and the ``line``
+profile) cannot be tiled: such a still must fit in the budget untiled, or it is
 refused before any work.  So is an image whose smallest tile (one row), or
 whose 8-bit picture for the PNG, does not fit.
 
@@ -120,14 +123,21 @@ def check_memory(values, budget_bytes=None):
     channels = 3 if values["observing.mode"] == "true_colour" else 1
     picture = 2.0 * width * height * channels  # the 8-bit picture and PIL's copy of it
     row = float(width) * per_pixel
-    if picture > budget * (1.0 - TILE_SHARE) or row > budget * TILE_SHARE:
-        needed = max(picture / (1.0 - TILE_SHARE), row / TILE_SHARE)
+    # A band with a sky or supersampling is traced with up to 2 HALO_ROWS + 1 more
+    # rows (render.sensor.halo_rows): the tile's memory includes them.
+    halo = 0
+    if values["sky.kind"] != "none" or values["image.supersampling"] > 1:
+        from .sensor import HALO_ROWS
+
+        halo = 2 * HALO_ROWS + 1
+    if picture > budget * (1.0 - TILE_SHARE) or (1 + halo) * row > budget * TILE_SHARE:
+        needed = max(picture / (1.0 - TILE_SHARE), (1 + halo) * row / TILE_SHARE)
         raise _scene_error(
             f"{size} cannot be rendered within {limit} even in tiles of rows: it needs "
             f"at least {needed / 1e9:.3g} GB (the 8-bit picture alone is "
             f"{width * height * channels / 1e9:.3g} GB)")
-    rows = max(1, min(height, int(budget * TILE_SHARE // row)))
-    return TilePlan(width, height, rows, budget, whole, rows * row)
+    rows = max(1, min(height, int(budget * TILE_SHARE // row) - halo))
+    return TilePlan(width, height, rows, budget, whole, (rows + halo) * row)
 
 
 def plan_still(scene, budget_bytes=None):
@@ -197,9 +207,22 @@ PIXEL_FIELDS = ("intensity", "pixels", "fate", "alpha", "beta", "steps")
 
 def _merge_info(total, part):
     if total is None:
-        return dict(part)
+        total = dict(part)
+        for key in ("antialias", "sky"):   # counted per band: copied before they are added to
+            if key in total:
+                total[key] = dict(total[key])
+        return total
     if "total_flux_jy" in part:
         total["total_flux_jy"] = total["total_flux_jy"] + part["total_flux_jy"]
+    # Counts of a sky and supersampling: each band counts its own rows (render.sensor).
+    if "antialias" in part:
+        mine, theirs = total["antialias"], part["antialias"]
+        for key in ("pixels_refined", "pixels", "samples_total"):
+            mine[key] += theirs[key]
+        mine["samples_per_pixel_mean"] = mine["samples_total"] / mine["pixels"]
+    if "sky" in part and "star_images" in part["sky"]:
+        for key in ("star_images", "sky_triangles_skipped"):
+            total["sky"][key] += part["sky"][key]
     return total
 
 

@@ -364,8 +364,11 @@ BAD_SCENES_WITH_FILES = [
     ("refine-threshold-zero", "image:\n  refine_threshold: 0\n", {},
      ["image.refine_threshold", "0", "0 < refine_threshold <= 1"]),
     ("preview-not-a-bool", "image:\n  preview: maybe\n", {}, ["image.preview", "'maybe'"]),
-    ("sky-in-a-tiled-still", "sky:\n  kind: stars\ntracing:\n  memory_budget: 0.01\n", {},
-     ["512 x 512", "tracing.memory_budget = 0.01 GB", "sky", "whole image"]),
+    # A sky is tiled when the white is fixed, not with the automatic colour exposure.
+    ("sky-in-a-tiled-still-with-auto-exposure", "sky:\n  kind: stars\nobserving:\n"
+     "  mode: true_colour\nemission:\n  law: novikov_thorne\ntracing:\n  memory_budget: 0.01\n",
+     {}, ["512 x 512", "tracing.memory_budget = 0.01 GB", "colour_exposure = 'auto'",
+          "whole image"]),
     ("profile-law-without-table", "emission:\n  law: profile\n", {},
      ["emission.law", "'profile'", "emission.profile"]),
     ("profile-table-missing", "emission:\n  law: profile\n  profile: absent.csv\n", {},
