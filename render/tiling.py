@@ -118,7 +118,9 @@ def check_memory(values, budget_bytes=None):
             + ("with observing.colour_exposure = 'auto' " if values["observing.mode"]
                == "true_colour" else "")
             + "shades the whole image at once (not in tiles); use a smaller image or "
-            "a larger budget" + (", or a fixed colour exposure" if values["observing.mode"]
+            "a larger budget" + (", or a fixed colour exposure (a smaller auto render's white is "
+                                 "observing.colour_reference_y in its metadata)"
+                                 if values["observing.mode"]
                                  == "true_colour" else ""))
     channels = 3 if values["observing.mode"] == "true_colour" else 1
     picture = 2.0 * width * height * channels  # the 8-bit picture and PIL's copy of it
