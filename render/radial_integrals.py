@@ -31,9 +31,9 @@ Root classes (as in :mod:`render.closed_form`)
 ----------------------------------------------
 * real roots r1 < r2 < r3 < r4 (classes 2, 3):
   r = r3 + r43 / (1 - n sn^2(X | k)), n = r41 / r31 > 1, |X| < K(k);
-  1 / (r - r_p) = [1 / (r4 - r_p)] [1 - (n (r3 - r_p)/(r4 - r_p)) ...] gives
-  Pi(n_p; am X | k) with n_p = n (r3 - r_p) / (r4 - r_p); the root used in the
-  identity above is r3.
+  1 / (r - r_p) = 1/(r4 - r_p) - [r43 / ((r4 - r_p)(r3 - r_p))] (1/(1 - n_p sn^2) - 1)
+  gives Pi(n_p; am X | k) with n_p = n (r3 - r_p) / (r4 - r_p); the root used in
+  the identity above is r3.
 * complex r3, r4 (class 4): r = (c_c + c_d cn) / (c_a + c_b cn); every term is
   an integral of a Moebius function of cn, reduced to Pi, an elementary integral
   G and X; the root used above is r2.
