@@ -1,4 +1,4 @@
-"""Closed-form transfer (render.closed_form) against the integrator: throughput and a 4K still.
+"""Closed-form transfer (render.geodesics.closed_form) against the integrator: throughput and a 4K still.
 
 Prints ONE line of JSON on stdout (progress goes to stderr)::
 
@@ -16,7 +16,7 @@ pixel-orders per second
     after a warm-up; process CPU time is reported beside wall time (on a shared
     machine CPU-seconds vary much less).
 ratio to the integrator
-    :func:`render.points.trace_bundle` on the same rays and orders at the
+    :func:`render.geodesics.tracing.trace_bundle` on the same rays and orders at the
     default tolerance 1e-9, timed the same way.  Like for like, both fill the
     same arrays (r, phi, delay, fates); g is added afterwards by the same
     function for both and is not timed.
@@ -26,7 +26,7 @@ image only
     it writes no data maps.  The integrator cannot skip them (they are two of
     its six equations, and cheap), so its time is the same.
 4K true-colour still
-    :func:`render.still.render_still` of a 3840 x 2160 Novikov–Thorne disk in
+    :func:`render.imaging.still.render_still` of a 3840 x 2160 Novikov–Thorne disk in
     true colour (spin 0.9, inclination 60 deg, 3 orders, transparent disk, fixed
     colour exposure, so that it renders in row tiles within the default 2 GB
     memory budget) with ``tracing.method: closed-form``: wall time of the whole
@@ -77,10 +77,10 @@ def main():
     import numba
 
     from render import default_scene
-    from render.camera import distant_observer_rays, image_plane_grid
-    from render.closed_form import closed_form_bundle
-    from render.points import DEFAULT_TOLERANCE, trace_bundle
-    from render.still import render_still
+    from render.camera.observers import distant_observer_rays, image_plane_grid
+    from render.geodesics.closed_form import closed_form_bundle
+    from render.geodesics.tracing import DEFAULT_TOLERANCE, trace_bundle
+    from render.imaging.still import render_still
 
     threads = numba.get_num_threads()
     alpha, beta = image_plane_grid(args.size, args.size, FIELD_OF_VIEW)

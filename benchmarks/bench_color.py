@@ -34,11 +34,11 @@ def measure_colour_overhead(size=512, repeat=3):
     args = argparse.Namespace(size=size, repeat=repeat)
 
     from render import default_scene
-    from render.cie import blackbody_xyz_table
-    from render.disk import on_disk, redshift_factor
-    from render.observing import prepare_observation, shade
-    from render.points import trace_bundle
-    from render.still import observer_rays, render_still
+    from render.light.cie import blackbody_xyz_table
+    from render.light.disk import on_disk, redshift_factor
+    from render.light.observing import prepare_observation, shade
+    from render.geodesics.tracing import trace_bundle
+    from render.imaging.still import observer_rays, render_still
 
     values = {"image.width": args.size, "image.height": args.size, "black_hole.spin": 0.9,
               "observer.inclination": 60.0, "observer.kind": "distant",

@@ -10,7 +10,7 @@ throughput
     A 512 x 512 image, spin a = 0.9, inclination 60 deg, distant observer (the
     exact observer at infinity, rays start at u = 1/r = 0), transparent disk,
     2 recorded orders, the default tolerance (1e-9), traced with
-    :func:`render.points.trace_bundle` after a warm-up call.  Every ray is
+    :func:`render.geodesics.tracing.trace_bundle` after a warm-up call.  Every ray is
     followed to its end (escape or capture), as a transparent-disk render does.
     Reported as rays per second and rays per second per numba thread
     (``numba.get_num_threads()``), from the median of the timed runs (the
@@ -140,14 +140,14 @@ def benchmark_scene():
 
 def subset(bundle, index):
     """The rays ``index`` of a RayBundle."""
-    from render.camera import RayBundle
+    from render.camera.observers import RayBundle
     return RayBundle(bundle.states[index], bundle.lam[index], bundle.eta[index],
                      bundle.energy_ratio[index], bundle.u_escape)
 
 
 def time_kernel(bundle, repeats, tolerance):
     """Wall and CPU seconds (all threads) of repeated traces of ``bundle``; the last result."""
-    from render.points import trace_bundle
+    from render.geodesics.tracing import trace_bundle
     wall, cpu = [], []
     raw = None
     for _ in range(repeats):
@@ -215,8 +215,8 @@ def scipy_trace(bundle, spin, method, rtol):
     """Per-ray solve_ivp loop; returns crossing radii (N, ORDERS), wall and CPU seconds per ray."""
     from scipy.integrate import solve_ivp
 
-    from render.points import CAPTURE_MARGIN
-    from render.spacetime import horizon_radii
+    from render.spacetime.kerr import CAPTURE_MARGIN
+    from render.spacetime.kerr import horizon_radii
     r_plus, _ = horizon_radii(spin)
     events = make_events(1.0 / (r_plus * (1.0 + CAPTURE_MARGIN)))
     n = bundle.lam.size
@@ -308,8 +308,8 @@ def main(argv=None):
     import scipy
 
     import render
-    from render.points import DEFAULT_TOLERANCE
-    from render.still import observer_rays
+    from render.geodesics.tracing import DEFAULT_TOLERANCE
+    from render.imaging.still import observer_rays
 
     if args.skip_startup:
         first_start, cached_starts, sources_changed = None, [], None

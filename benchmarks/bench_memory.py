@@ -8,9 +8,9 @@ Prints ONE line of JSON on stdout (progress goes to stderr)::
 What is measured
 ----------------
 The still is rendered the way ``nullray still`` renders it: validated scene,
-:func:`render.still.render_still` with its temporary tile files inside the
-output folder, then :func:`render.output.write_still` (PNG and the NPZ of every
-map, streamed from the tile files) and :func:`render.products.write_products`
+:func:`render.imaging.still.render_still` with its temporary tile files inside the
+output folder, then :func:`render.output.files.write_still` (PNG and the NPZ of every
+map, streamed from the tile files) and :func:`render.output.products.write_products`
 (the extra products, streamed in blocks of a tile's rows), then the temporary
 files are removed.  The scene: distant observer, spin 0.9, inclination 60 deg,
 opaque disk out to 20 M, ``--orders`` recorded orders (default 2), tolerance
@@ -60,9 +60,9 @@ def main(argv=None):
     args = parser.parse_args(argv)
 
     from render import default_scene
-    from render.output import write_still
-    from render.products import write_products
-    from render.still import render_still
+    from render.output.files import write_still
+    from render.output.products import write_products
+    from render.imaging.still import render_still
 
     values = {"name": "bench-memory", "observer.kind": "distant", "black_hole.spin": 0.9,
               "observer.inclination": 60.0, "disk.orders": args.orders,

@@ -13,7 +13,7 @@ fastest round of each is reported, with its CPU time (this process plus its
 finished child processes; idle numba threads that spin count as CPU time, so
 the serial figure per CPU-second is a low estimate) and the load average at its
 start.  Each run renders the whole sequence into a fresh temporary folder with
-:func:`render.animation.render_sequence` (frames, manifest; the video and other
+:func:`render.api.render_sequence` (frames, manifest; the video and other
 products are left out, they are the same for both modes):
 
 serial
@@ -58,7 +58,8 @@ def main():
     import numba
 
     from render import load_scene
-    from render.animation import plan_sequence, render_frame, render_sequence
+    from render.api import render_sequence
+    from render.film.sequence import plan_sequence, render_frame
 
     scene = load_scene(REPO / "scenes" / "orbit-kestrel.yaml",
                        [f"animation.frames={args.frames}"])

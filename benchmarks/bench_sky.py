@@ -45,8 +45,8 @@ def main():
     from PIL import Image
 
     from render import default_scene, render_still
-    from render.sensor import preview_scene
-    from render.sky import sample_panorama_image
+    from render.scene.loader import preview_scene
+    from render.imaging.sky import sample_panorama_image
 
     folder = tempfile.mkdtemp(prefix="bench-sky-")
     panorama = os.path.join(folder, "panorama.png")

@@ -9,11 +9,15 @@ The Python API, in pipeline order::
 and for distant-observer transfer functions::
 
     render.trace_points(alpha, beta, spin=0.9, inclination_deg=60.0)
+
+The package is laid out by concept (DEVELOPERS.md): ``spacetime``, ``camera``,
+``geodesics``, ``light``, ``imaging``, ``scene``, ``output``, ``film``,
+``measure``, then ``parallel``, ``api`` and ``cli``; each imports only from those
+before it.
 """
 
-__version__ = "0.1.0"
-
-from .spacetime import (  # noqa: E402
+from .about import __version__
+from .spacetime.kerr import (
     circular_orbit_angular_momentum,
     circular_orbit_energy,
     circular_orbit_time_component,
@@ -24,28 +28,32 @@ from .spacetime import (  # noqa: E402
     photon_orbit_radii,
     photon_orbit_radius,
 )
-from .scene import SceneError, Scene, default_scene, load_scene  # noqa: E402
-from .points import trace_points  # noqa: E402
-from .still import StillResult, render_still  # noqa: E402
-from .output import write_still  # noqa: E402
-from .thermal import (  # noqa: E402
+from .errors import OutputExists, OutputWriteError, SceneError, WorkerLostError
+from .scene.loader import Scene, default_scene, load_scene
+from .light.transfer import trace_points
+from .light.thermal import (
     eddington_luminosity,
     effective_temperature,
     page_thorne_flux,
     planck_nu,
     radiative_efficiency,
 )
-from .products import write_products  # noqa: E402
-from .shadow import critical_curve, shadow_moments  # noqa: E402
+from .imaging.result import StillResult
+from .output.files import write_still
+from .output.products import write_products
+from .measure.shadow import critical_curve, shadow_moments
+from .measure.shadow_measurement import measure_scene
+from .api import make_still, render_sequence, render_still
 
 __all__ = [
     "__version__",
     "circular_orbit_angular_momentum", "circular_orbit_energy", "circular_orbit_time_component",
     "ergosphere_radius", "horizon_radii", "isco_radius", "keplerian_angular_velocity",
     "photon_orbit_radii", "photon_orbit_radius",
-    "SceneError", "Scene", "default_scene", "load_scene",
-    "trace_points", "StillResult", "render_still", "write_still",
-    "radiative_efficiency", "page_thorne_flux", "effective_temperature",
+    "SceneError", "OutputExists", "OutputWriteError", "WorkerLostError",
+    "Scene", "default_scene", "load_scene",
+    "trace_points", "StillResult", "render_still", "make_still", "render_sequence",
+    "write_still", "radiative_efficiency", "page_thorne_flux", "effective_temperature",
     "eddington_luminosity", "planck_nu", "write_products",
-    "critical_curve", "shadow_moments",
+    "critical_curve", "shadow_moments", "measure_scene",
 ]

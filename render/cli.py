@@ -1,18 +1,14 @@
 """Command line: argument parsing only; the work is done by the Python API."""
 
 import argparse
-import os
 import sys
-from pathlib import Path
 
-from . import __version__
+from .about import __version__
+from .errors import BAD_INPUT_ERRORS, RUN_ERRORS
 
+EXIT_FAILED = 1       # a failure while running: a write that failed, a worker that died
 EXIT_BAD_INPUT = 2
 EXIT_INTERRUPTED = 130
-
-
-class OutputFolderError(Exception):
-    """The --output-dir cannot be created or written; the message is one line."""
 
 
 def _add_common_options(command):
@@ -67,9 +63,9 @@ def _parser():
 
 
 def _measure(args):
-    from .measure import (format_table, measure_paths, measure_scene, parse_tolerances,
-                          write_measurement)
-    from .output import check_free
+    from .measure.shadow_measurement import (format_table, measure_paths, measure_scene,
+                                             parse_tolerances, write_measurement)
+    from .output.files import check_free
 
     tolerances = parse_tolerances(args.tolerances)
     scene = _load(args)
@@ -82,7 +78,7 @@ def _measure(args):
 
 
 def _load(args):
-    from .scene import default_scene, load_scene
+    from .scene.loader import default_scene, load_scene
 
     if args.scene:
         return load_scene(args.scene, args.overrides)
@@ -90,95 +86,55 @@ def _load(args):
 
 
 def _still(args):
-    from .output import check_free, still_paths, write_still
-    from .still import render_still
-
-    from .observing import prepare_observation
-    from .products import product_paths, write_products
-
-    from .sensor import prepare_sky, preview_scene
-
-    if getattr(args, "preview", False):
-        args.overrides = list(args.overrides) + ["image.preview=true"]
-    scene = _load(args)
-    if scene["image.preview"]:
-        scene = preview_scene(scene)
-    prepare_observation(scene)  # reads an emission profile table: fail before any file is made
-    prepare_sky(scene)  # reads a sky panorama: likewise
-    folder = Path(args.output_dir)
-    # Refuse before any work if a target exists (nothing the user made is
-    # overwritten silently).
-    check_free(list(still_paths(scene.document, folder).values())
-               + list(product_paths(scene.document, folder).values()), args.overwrite)
-    scheduler = getattr(args, "scheduler", None)
-    if scheduler and (scene["sky.kind"] != "none" or scene["image.supersampling"] > 1):
-        raise OutputFolderError("--scheduler renders bands of rows, but a sky or "
-                                "image.supersampling needs the whole image at once")
-    if scheduler:
-        from .distributed import check_scheduler
-
-        check_scheduler(scheduler)  # unreachable: one line before the folder is made
-    # Likewise make sure the folder can be written before the (long) render.
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise OutputFolderError(f"--output-dir {str(folder)!r} cannot be used: "
-                                f"{exc.strerror or exc}") from None
-    if not os.access(folder, os.W_OK | os.X_OK):
-        raise OutputFolderError(f"--output-dir {str(folder)!r} is not writable")
+    from .api import make_still
     from .progress import RayProgress
 
+    if args.preview:
+        args.overrides = list(args.overrides) + ["image.preview=true"]
+    scene = _load(args)
     bar = RayProgress(quiet=args.quiet)
     try:
-        # A still larger than tracing.memory_budget keeps its maps in temporary files
-        # inside the output folder until they are written (render.tiling).
-        if scheduler:
-            from .distributed import render_still_on_cluster
-
-            result = render_still_on_cluster(scene, scheduler, workdir=folder, progress=bar)
-        else:
-            result = render_still(scene, progress=bar, workdir=folder)
+        result, paths = make_still(scene, args.output_dir, overwrite=args.overwrite,
+                                   progress=bar, scheduler=args.scheduler)
     finally:
         bar.close()
-    try:
-        paths = write_still(result, folder, overwrite=args.overwrite)
-        paths.update(write_products(result, folder, overwrite=args.overwrite))
-    finally:
-        result.release()
     if not args.quiet:
-        meta = result.metadata
-        counts = ", ".join(f"{k} {v}" for k, v in meta["fate_counts"].items())
-        print(f"rendered {scene['image.width']}x{scene['image.height']} in "
-              f"{meta['total_seconds']:.2f} s (spin {scene.spin:g}, inclination "
-              f"{scene['observer.inclination']:g} deg, ISCO {meta['isco']:.4f} M); pixels: {counts}")
-        observed = meta.get("observing", {})
-        antialias = observed.get("antialias")
-        if antialias:
-            print(f"anti-aliasing: {antialias['samples_total']} samples "
-                  f"({antialias['samples_per_pixel_mean']:.2f} per pixel; "
-                  f"{antialias['pixels_refined']} of {antialias['pixels']} pixels refined "
-                  f"with {antialias['supersampling']}x{antialias['supersampling']} "
-                  f"{antialias['filter']}-filtered rays)")
-        if observed.get("sky", {}).get("kind") == "stars":
-            stars = observed["sky"]
-            print(f"sky: {stars['stars']} stars, {stars['star_images']:.0f} star images in view")
-        for warning in observed.get("warnings", ()):
-            print(f"nullray: warning: {warning}", file=sys.stderr)
-        if "total_flux_jy" in observed:
-            print(f"total flux density {observed['total_flux_jy']:.4g} Jy at "
-                  f"{observed['frequency_hz']:.4g} Hz; pixel {observed['pixel_scale']:.4g} "
-                  f"{observed['pixel_scale_unit']}")
-        for path in paths.values():
-            print(f"wrote {path}")
+        _print_still_summary(scene, result, paths)
     return 0
 
 
+def _print_still_summary(scene, result, paths):
+    meta = result.metadata
+    height, width = result.pixels.shape[:2]
+    counts = ", ".join(f"{k} {v}" for k, v in meta["fate_counts"].items())
+    print(f"rendered {width}x{height} in {meta['total_seconds']:.2f} s (spin {scene.spin:g}, "
+          f"inclination {scene['observer.inclination']:g} deg, ISCO {meta['isco']:.4f} M); "
+          f"pixels: {counts}")
+    observed = meta.get("observing", {})
+    antialias = observed.get("antialias")
+    if antialias:
+        print(f"anti-aliasing: {antialias['samples_total']} samples "
+              f"({antialias['samples_per_pixel_mean']:.2f} per pixel; "
+              f"{antialias['pixels_refined']} of {antialias['pixels']} pixels refined "
+              f"with {antialias['supersampling']}x{antialias['supersampling']} "
+              f"{antialias['filter']}-filtered rays)")
+    if observed.get("sky", {}).get("kind") == "stars":
+        stars = observed["sky"]
+        print(f"sky: {stars['stars']} stars, {stars['star_images']:.0f} star images in view")
+    for warning in observed.get("warnings", ()):
+        print(f"nullray: warning: {warning}", file=sys.stderr)
+    if "total_flux_jy" in observed:
+        print(f"total flux density {observed['total_flux_jy']:.4g} Jy at "
+              f"{observed['frequency_hz']:.4g} Hz; pixel {observed['pixel_scale']:.4g} "
+              f"{observed['pixel_scale_unit']}")
+    for path in paths.values():
+        print(f"wrote {path}")
+
+
 def _sequence(args):
-    from .animation import render_sequence
+    from .api import render_sequence
     from .progress import FrameProgress
 
-    if args.workers is not None and args.workers < 1:
-        raise OutputFolderError(f"--workers {args.workers} is not allowed; expected N >= 1")
     scene = _load(args)
     bar = FrameProgress(quiet=args.quiet)
     try:
@@ -205,17 +161,19 @@ def _sequence(args):
     return 0
 
 
+def _one_line_error(exc, status):
+    # One line, whatever the key or file name contained.
+    message = str(exc).replace("\r", "\\r").replace("\n", "\\n")
+    print(f"nullray: error: {message}", file=sys.stderr)
+    return status
+
+
 def main(argv=None):
     """Entry point of the ``nullray`` command; returns the exit status."""
-    from .animation import SequenceFolderError
-    from .distributed import SchedulerError
-    from .output import OutputExists
-    from .scene import SceneError
-
     args = _parser().parse_args(argv)
     try:
         if args.command == "keys":
-            from .scene import keys_reference
+            from .scene.loader import keys_reference
 
             print(keys_reference())
             return 0
@@ -224,12 +182,10 @@ def main(argv=None):
         if args.command == "sequence":
             return _sequence(args)
         return _still(args)
-    except (SceneError, OutputExists, OutputFolderError, SequenceFolderError,
-            SchedulerError) as exc:
-        # One line, whatever the key or file name contained.
-        message = str(exc).replace("\r", "\\r").replace("\n", "\\n")
-        print(f"nullray: error: {message}", file=sys.stderr)
-        return EXIT_BAD_INPUT
+    except BAD_INPUT_ERRORS as exc:
+        return _one_line_error(exc, EXIT_BAD_INPUT)
+    except RUN_ERRORS as exc:
+        return _one_line_error(exc, EXIT_FAILED)
     except KeyboardInterrupt:
         print(f"nullray: interrupted; finished outputs (if any) are in {args.output_dir}/",
               file=sys.stderr)

@@ -20,7 +20,7 @@ def _is_terminal(stream):
 
 
 class RayProgress:
-    """``progress(done, total)`` callback of :func:`render.points.trace_bundle` for a still."""
+    """``progress(done, total)`` callback of :func:`render.geodesics.tracing.trace_bundle` for a still."""
 
     def __init__(self, quiet=False, stream=None, description="tracing"):
         self.stream = stream or sys.stderr
@@ -45,7 +45,7 @@ class RayProgress:
 
 
 class FrameProgress:
-    """``progress(done, total, result)`` callback of :func:`render.animation.render_sequence`."""
+    """``progress(done, total, result)`` callback of :func:`render.api.render_sequence`."""
 
     def __init__(self, quiet=False, stream=None):
         self.stream = stream or sys.stderr

@@ -2,7 +2,8 @@
 
 import pytest
 
-import render.points
+import render.geodesics.closed_form
+import render.geodesics.tracing
 from render import default_scene
 from render.cli import main
 
@@ -21,12 +22,19 @@ def small_scene():
 
 @pytest.fixture
 def no_tracing(monkeypatch):
-    """Make any call of the numba kernel fail the test: errors must come first."""
+    """Make any call of a tracing kernel fail the test: errors must come first.
+
+    Every kernel that traces rays is covered where the front door calls it: the
+    integrator, the continuation to infinity (the sky) and the closed form.
+    """
 
     def refuse(*args, **kwargs):
-        raise AssertionError("the ray-tracing kernel ran although the input was bad")
+        raise AssertionError("a ray-tracing kernel ran although the input was bad")
 
-    monkeypatch.setattr(render.points, "trace_rays", refuse)
+    for module, name in ((render.geodesics.tracing, "trace_rays"),
+                         (render.geodesics.tracing, "trace_to_infinity"),
+                         (render.geodesics.closed_form, "closed_form_crossings")):
+        monkeypatch.setattr(module, name, refuse)
 
 
 def run_cli(args, capsys):

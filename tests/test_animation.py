@@ -15,9 +15,10 @@ from PIL import Image
 
 from conftest import run_cli
 from render import default_scene, render_still
-from render.animation import interpolate, plan_sequence, render_frame, render_sequence
-from render.pattern import emission_time, tortoise_radius
-from render.scene import SceneError
+from render.api import render_sequence
+from render.film.sequence import interpolate, plan_sequence, render_frame
+from render.light.pattern import emission_time, tortoise_radius
+from render.errors import SceneError
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -287,11 +288,11 @@ def _schwarzschild_ray_to_the_equator(b, r_o):
 
 def test_emission_time_of_a_camera_matches_a_direct_integration():
     # A static camera on the axis at r_o = 60 M of a Schwarzschild hole: t_obs - t_em from
-    # render.pattern.emission_time (the kernel's regularised delay plus tortoise terms) equals
+    # render.light.pattern.emission_time (the kernel's regularised delay plus tortoise terms) equals
     # the coordinate time along the ray integrated independently with scipy.  Tolerance
     # 1e-7 relative: the kernel runs at tolerance 1e-11.
-    from render.camera import camera_rays, image_plane_grid
-    from render.points import trace_bundle
+    from render.camera.observers import camera_rays, image_plane_grid
+    from render.geodesics.tracing import trace_bundle
 
     r_o = 60.0
     x, y = image_plane_grid(10, 1, 40.0)  # pixel centres at 6, 10 and 14 M off the axis
@@ -327,7 +328,7 @@ def test_one_white_for_a_sweep_is_the_largest_frame_white():
     # A spin sweep moves the inner edge (the ISCO) and with it the exposure's white,
     # I_em(r_in) = r_in^-3 for the power law (README exposure rule); the sequence uses the
     # largest, so no frame saturates for want of its own white and all share one exposure.
-    from render.spacetime import isco_radius
+    from render.spacetime.kerr import isco_radius
 
     scene = small(**{"animation.frames": 3, "animation.keyframes": [
         {"frame": 0, "black_hole.spin": 0.0}, {"frame": 2, "black_hole.spin": 0.9}]})

@@ -17,7 +17,7 @@ import pytest
 from PIL import Image
 
 from render.cli import EXIT_BAD_INPUT, main
-from render.scene import KEYS, load_scene, scene_from_dict
+from render.scene.loader import KEYS, load_scene, scene_from_dict
 
 from conftest import run_cli  # noqa: E402  (shared test helpers)
 
@@ -290,12 +290,12 @@ def test_existing_extra_product_is_not_overwritten(tmp_path, capsys, no_tracing)
 
 
 def test_interrupt_exits_130_and_writes_nothing(tmp_path, capsys, monkeypatch):
-    import render.still
+    import render.api
 
     def interrupted(scene, *args, **kwargs):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(render.still, "render_still", interrupted)
+    monkeypatch.setattr(render.api, "render_still", interrupted)
     status, out, err = run_cli(["still", *SMALL, "--output-dir", tmp_path / "out"], capsys)
     assert status == 130  # 128 + SIGINT (common practice for shells)
     assert err.count("\n") == 1 and "interrupted" in err and "Traceback" not in err

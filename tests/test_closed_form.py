@@ -1,4 +1,4 @@
-"""Closed-form transfer (render.closed_form) against outside computations and the integrator.
+"""Closed-form transfer (render.geodesics.closed_form) against outside computations and the integrator.
 
 * the roots of the radial potential against numpy.roots;
 * Mino-time consistency: at every closed-form crossing the radial Mino time from
@@ -6,8 +6,8 @@
   n-th crossing (quad of dmu / sqrt(Theta_mu)), both written from the Carter
   potentials (Carter 1968);
 * Darwin's (1959) exact Schwarzschild deflection (elliptic integrals by scipy.special);
-* the numerical integrator (render.geodesics) at tolerance 1e-12 over whole images,
-  away from the critical curve (render.shadow.critical_curve).
+* the numerical integrator (render.geodesics.integrator) at tolerance 1e-12 over whole images,
+  away from the critical curve (render.measure.shadow.critical_curve).
 """
 
 import math
@@ -19,12 +19,13 @@ from scipy.spatial import cKDTree
 from scipy.special import ellipk, ellipkinc
 
 from render import default_scene, trace_points
-from render.camera import distant_observer_rays, image_plane_grid
-from render.closed_form import closed_form_bundle, radial_roots, resolve_method
-from render.disk import redshift_factor
-from render.points import trace_bundle
-from render.shadow import critical_curve
-from render.still import render_still
+from render.camera.observers import distant_observer_rays, image_plane_grid
+from render.geodesics.closed_form import closed_form_bundle, radial_roots
+from render.geodesics.tracing import resolve_method
+from render.light.disk import redshift_factor
+from render.geodesics.tracing import trace_bundle
+from render.measure.shadow import critical_curve
+from render.imaging.still import render_still
 
 RNG = np.random.default_rng(6)
 
@@ -281,7 +282,7 @@ def test_matches_integrator_other_geometries(spin, inclination):
 
 
 def test_redshift_factor_uses_the_disk_rule():
-    # g from the closed-form radii through render.disk.redshift_factor
+    # g from the closed-form radii through render.light.disk.redshift_factor
     # (Cunningham & Bardeen 1973): NaN inside the ISCO like the integrator's.
     alpha, beta = np.array([-3.0, 8.0]), np.array([0.5, 6.0])
     out = trace_points(alpha, beta, spin=0.9, inclination_deg=60.0, method="closed-form")
@@ -309,7 +310,7 @@ def test_method_selection_rules():
 
 def test_closed_form_bundle_raw_keys_match_trace_bundle():
     # render_still consumes either dict: same keys, shapes and dtypes kinds.
-    from render.points import trace_bundle
+    from render.geodesics.tracing import trace_bundle
 
     alpha, beta = np.array([2.0, -7.0, 0.1]), np.array([6.0, 1.0, 0.2])
     bundle = distant_observer_rays(alpha, beta, 0.6, 40.0)
@@ -342,7 +343,7 @@ def test_render_still_method_choice_and_agreement(small_scene):
 
 def test_render_still_opaque_disk_closed_form(small_scene):
     # Opaque disk: the ray ends at its first crossing on the disk (fate 2), as the
-    # integrator does (render.geodesics: stop_on_disk).
+    # integrator does (render.geodesics.integrator: stop_on_disk).
     values = {"disk.surface": "opaque", "black_hole.spin": 0.5, "observer.inclination": 75.0}
     integrated = render_still(small_scene(**values))
     closed = render_still(small_scene(**values, **{"tracing.method": "closed-form"}))
@@ -355,7 +356,7 @@ def test_render_still_opaque_disk_closed_form(small_scene):
 
 def test_closed_form_refused_for_a_camera():
     # Bad input fails in scene validation, before any tracing (README: SceneError).
-    from render.scene import SceneError
+    from render.errors import SceneError
 
     with pytest.raises(SceneError, match="tracing.method"):
         default_scene(**{"observer.kind": "camera", "tracing.method": "closed-form"})

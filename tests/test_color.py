@@ -6,10 +6,10 @@ import zlib
 import numpy as np
 import pytest
 
-from render.cie import (blackbody_xyz, chromaticity, colour_matching_functions,
-                        xyz_to_linear_srgb_matrix)
-from render.color import desaturate_into_gamut, expose_true_colour, xyz_to_linear_srgb
-from render.thermal import cgs
+from render.light.cie import (blackbody_xyz, chromaticity, colour_matching_functions,
+                              xyz_to_linear_srgb_matrix)
+from render.light.color import desaturate_into_gamut, expose_true_colour, xyz_to_linear_srgb
+from render.light.thermal import cgs
 
 colour = pytest.importorskip("colour")  # the colour-science reference (test extra)
 
@@ -128,7 +128,7 @@ def test_fixed_exposure_is_the_same_for_all_frames(small_scene):
 
 def test_png16_decodes_to_the_same_values(tmp_path):
     # Decoded with zlib by the PNG specification (ISO/IEC 15948, filter type 0 rows).
-    from render.products import write_png16
+    from render.output.products import write_png16
 
     data = (np.arange(2 * 3 * 3, dtype=np.uint16).reshape(2, 3, 3) * 3000)
     path = write_png16(tmp_path / "x.png", data)

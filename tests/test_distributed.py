@@ -7,8 +7,9 @@ import pytest
 from PIL import Image
 
 from render import default_scene
-from render.animation import render_sequence
-from render.distributed import SchedulerError, connect, local_threads
+from render.api import render_sequence
+from render.errors import SchedulerError
+from render.parallel import connect, local_threads
 
 
 def _scene():
@@ -66,7 +67,7 @@ def test_dask_local_cluster_gives_the_serial_frames(tmp_path, serial, cluster):
 
 def test_a_still_in_bands_on_the_cluster_equals_the_local_still(tmp_path, cluster):
     from render import render_still
-    from render.distributed import render_still_on_cluster
+    from render.parallel import render_still_on_cluster
 
     scene = default_scene(**{"image.width": 40, "image.height": 30, "observer.kind": "distant",
                              "disk.surface": "transparent"})

@@ -21,10 +21,10 @@ import numpy as np
 import pytest
 
 from render import default_scene, trace_points
-from render.camera import camera_rays, image_plane_grid
-from render.points import trace_bundle
-from render.spacetime import horizon_radii, isco_radius
-from render.still import render_still
+from render.camera.observers import camera_rays, image_plane_grid
+from render.geodesics.tracing import trace_bundle
+from render.spacetime.kerr import horizon_radii, isco_radius
+from render.imaging.still import render_still
 
 B_CRIT = math.sqrt(27.0)  # Schwarzschild critical impact parameter (Synge 1966; Luminet 1979)
 
@@ -340,7 +340,7 @@ def test_negative_energy_photons_seen_from_deep_in_the_ergoregion(tmp_path):
     assert np.all(np.isfinite(g)) and np.all(g > 0.0)
     assert np.all(np.isfinite(still.intensity)) and np.all(still.intensity.ravel()[hits] > 0.0)
     r_isco = isco_radius(a)
-    from render.emission import emission_cosine
+    from render.light.emission import emission_cosine
 
     bundle = camera_rays(x, y, a, r_o, inclination, 0.0, "zamo")
     for i in np.nonzero(hits)[0][::4]:
@@ -445,7 +445,7 @@ def test_sigint_during_tracing_exits_130_and_leaves_no_files(tmp_path):
 
 
 def test_sigint_is_deferred_until_the_kernel_call_returns():
-    from render.geodesics import deferred_interrupts
+    from render.geodesics.integrator import deferred_interrupts
 
     reached_end = False
     with pytest.raises(KeyboardInterrupt):

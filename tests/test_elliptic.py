@@ -16,7 +16,7 @@ import pytest
 import scipy.special as sp
 from scipy.integrate import quad
 
-from render import elliptic
+from render.geodesics import elliptic
 
 RNG = np.random.default_rng(20260)
 TOL = 1e-13

@@ -6,8 +6,8 @@ from scipy import integrate
 
 from render import render_still, trace_points
 from render.cli import main
-from render.emission import (EmissionTableError, RadialProfile, emission_cosine, limb_darkening,
-                             read_profile_table)
+from render.light.emission import (EmissionTableError, RadialProfile, emission_cosine,
+                                   limb_darkening, read_profile_table)
 
 
 def test_power_law_default_is_g4_r_minus_q(small_scene):
@@ -32,7 +32,7 @@ def test_emission_angle_far_from_the_hole_is_the_inclination():
     # disk at angle i from its normal; the orbital speed v = r^-1/2 aberrates this at first
     # order in v on the approaching/receding side (special-relativistic aberration), so the
     # deviation must fall like r^-1/2: below 1e-3 at r = 1e6 M and 10x smaller than at 1e4 M.
-    import render.camera as camera
+    import render.camera.observers as camera
 
     alpha, beta = np.array([1e4, 1e6, 0.0]), np.array([0.0, 0.0, 1e6])
     out = trace_points(alpha, beta, spin=0.5, inclination_deg=60.0, max_orders=1)

@@ -3,8 +3,8 @@
 Documents are drawn by hypothesis: nested mappings and lists of scalars,
 strings and keys, biased toward the real section and key names (so that deep
 validation paths are reached), given to the loader both as Python mappings
-(:func:`render.scene.scene_from_dict`) and as YAML files
-(:func:`render.scene.load_scene`), plus raw text and bytes.
+(:func:`render.scene.loader.scene_from_dict`) and as YAML files
+(:func:`render.scene.loader.load_scene`), plus raw text and bytes.
 
 The default run draws a short series; the long one is outside it::
 
@@ -19,7 +19,8 @@ import yaml
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from render.scene import KEYS, SECTIONS, Scene, SceneError, load_scene, scene_from_dict
+from render.scene.loader import KEYS, SECTIONS, Scene, load_scene, scene_from_dict
+from render.errors import SceneError
 
 SHORT = settings(max_examples=40, deadline=None, derandomize=True,
                  suppress_health_check=[HealthCheck.too_slow])

@@ -1,4 +1,4 @@
-"""Measurements of rendered images against the analytic shadow (render.measure, nullray measure)."""
+"""Measurements of rendered images against the analytic shadow (render.measure.shadow_measurement, nullray measure)."""
 
 import json
 import math
@@ -9,14 +9,9 @@ import pytest
 
 from render import default_scene, shadow_moments
 from render.cli import main
-from render.measure import (
-    MeasureError,
-    image_moments,
-    measure_scene,
-    photon_ring_edges,
-    ring_profiles,
-)
-from render.still import render_still
+from render.measure.shadow_measurement import (MeasureError, image_moments, measure_scene,
+                                               photon_ring_edges, ring_profiles)
+from render.imaging.still import render_still
 
 REPO = Path(__file__).resolve().parents[1]
 EXAMPLE = REPO / "scenes" / "regression-shadow.yaml"

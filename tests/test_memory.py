@@ -18,12 +18,12 @@ import numpy as np
 import pytest
 
 from render import default_scene
-from render.camera import image_plane_grid
+from render.camera.observers import image_plane_grid
 from render.cli import EXIT_BAD_INPUT
-from render.output import write_still
-from render.scene import SceneError
-from render.still import render_still
-from render.tiling import check_memory
+from render.output.files import write_still
+from render.errors import SceneError
+from render.imaging.still import render_still
+from render.imaging.tiling import check_memory
 
 from conftest import run_cli  # noqa: E402  (shared test helpers)
 
@@ -97,7 +97,7 @@ def test_band_grid_is_the_full_grid_bit_for_bit(roll):
 
 
 def test_command_line_tiles_under_a_small_budget(tmp_path, capsys):
-    # 128 x 128 with 2 orders needs ~14 MB untiled (render.tiling's model), more than
+    # 128 x 128 with 2 orders needs ~14 MB untiled (render.imaging.tiling's model), more than
     # the 0.01 GB budget: the command renders in tiles and writes the same files.
     common = ["still", "--set", "observer.kind=distant", "--set", "image.width=128",
               "--set", "image.height=128", "--quiet"]
@@ -125,9 +125,9 @@ def test_command_line_tiles_under_a_small_budget(tmp_path, capsys):
 
 
 def test_interrupted_tiled_render_leaves_no_temporary_files(tmp_path, monkeypatch):
-    import render.still
+    import render.imaging.still
 
-    original = render.still._render_band
+    original = render.imaging.still._render_band
     calls = []
 
     def interrupt_third(scene, observation, rows, progress, *rest):
@@ -136,7 +136,7 @@ def test_interrupted_tiled_render_leaves_no_temporary_files(tmp_path, monkeypatc
             raise KeyboardInterrupt
         return original(scene, observation, rows, progress, *rest)
 
-    monkeypatch.setattr(render.still, "_render_band", interrupt_third)
+    monkeypatch.setattr(render.imaging.still, "_render_band", interrupt_third)
     with pytest.raises(KeyboardInterrupt):
         render_still(small(), memory_budget=3e5, workdir=tmp_path)
     assert len(calls) == 3 and list(tmp_path.iterdir()) == []
@@ -196,7 +196,7 @@ PRODUCTS = {"observing.mode": "true_colour", "emission.law": "novikov_thorne",
             "observing.colour_exposure": "fixed", "observing.colour_reference": 1e10,
             "output.fits": True, "disk.orders": 1, "tracing.tolerance": 1e-6}
 WIDTH = 128
-# 4 rows per tile: render.tiling's model gives 840 bytes per pixel here (true colour,
+# 4 rows per tile: render.imaging.tiling's model gives 840 bytes per pixel here (true colour,
 # 1 order), and a tile may take a quarter of the budget.
 FOUR_ROW_BUDGET = 4 * WIDTH * 840 / 0.25 + 1
 
@@ -242,7 +242,7 @@ def png16_rows(path):
 def test_extra_products_of_a_tiled_still_equal_the_untiled_ones(mode, tmp_path):
     from astropy.io import fits
 
-    from render.products import fits_hdus, write_products
+    from render.output.products import fits_hdus, write_products
 
     scene = products_scene(96, mode)
     whole = render_still(scene)
@@ -291,7 +291,7 @@ def traced_peak_of_writing(scene, folder):
     tiled still are written, above what was allocated when writing started."""
     import tracemalloc
 
-    from render.products import write_products
+    from render.output.products import write_products
 
     still = render_still(scene, memory_budget=FOUR_ROW_BUDGET, workdir=folder / "work")
     try:
@@ -325,11 +325,11 @@ def test_memory_for_extra_products_grows_with_the_tile_not_the_image(tmp_path):
 
 
 def test_interrupted_product_writing_leaves_no_partial_file(tmp_path, monkeypatch):
-    import render.products
+    import render.output.products
 
     scene = products_scene(48)
     still = render_still(scene, memory_budget=FOUR_ROW_BUDGET, workdir=tmp_path / "work")
-    original = render.products.read_rows
+    original = render.output.products.read_rows
     calls = []
 
     def interrupt(*args, **kwargs):
@@ -340,11 +340,11 @@ def test_interrupted_product_writing_leaves_no_partial_file(tmp_path, monkeypatc
             raise KeyboardInterrupt
         return original(*args, **kwargs)
 
-    monkeypatch.setattr(render.products, "read_rows", interrupt)
+    monkeypatch.setattr(render.output.products, "read_rows", interrupt)
     out = tmp_path / "out"
     try:
         with pytest.raises(KeyboardInterrupt):
-            render.products.write_products(still, out)
+            render.output.products.write_products(still, out)
     finally:
         still.release()
     # The FITS file was finished (it is published only whole); the 16-bit PNG was being

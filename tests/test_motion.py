@@ -4,11 +4,11 @@ import numpy as np
 import pytest
 
 from render import default_scene
-from render.animation import plan_sequence
-from render.camera import camera_rays, image_plane_grid
-from render.motion import MotionError, boost_frame, velocity_from_coordinates
-from render.scene import SceneError
-from render.spacetime import circular_orbit_time_component, keplerian_angular_velocity
+from render.film.sequence import plan_sequence
+from render.camera.observers import camera_rays, image_plane_grid
+from render.spacetime.motion import MotionError, boost_frame, velocity_from_coordinates
+from render.errors import SceneError
+from render.spacetime.kerr import circular_orbit_time_component, keplerian_angular_velocity
 
 
 def _metric(r, theta, a):
@@ -27,7 +27,7 @@ def _metric(r, theta, a):
 
 def test_boosted_frame_is_orthonormal():
     # A Lorentz boost keeps the frame orthonormal: e_a . e_b = eta_ab (common practice).
-    from render.camera import observer_frame
+    from render.camera.observers import observer_frame
 
     r, theta, a = 7.0, 1.1, 0.8
     boosted = boost_frame(observer_frame(a, r, theta, "zamo"), [0.3, -0.2, 0.5])
@@ -65,7 +65,7 @@ def _static_frame_direction(bundle, r, theta):
     energy = 1.0 / np.sqrt(f)  # per unit E
     n_phi = bundle.lam / (r * np.sin(theta)) / energy
     p_theta2 = np.maximum(bundle.eta - bundle.lam ** 2 / np.tan(theta) ** 2, 0.0)
-    # states[:, 3] = sin(theta) Sigma p^theta / E (render.camera): its sign is p^theta's.
+    # states[:, 3] = sin(theta) Sigma p^theta / E (render.camera.observers): its sign is p^theta's.
     n_theta = np.sign(bundle.states[:, 3]) * np.sqrt(p_theta2) / r / energy
     n_r = np.sqrt(np.maximum(1.0 - n_theta ** 2 - n_phi ** 2, 0.0))  # outgoing at the camera
     return -np.stack([n_r, n_theta, n_phi], axis=1)
@@ -102,7 +102,7 @@ def test_keplerian_orbit_camera_moves_with_the_circular_geodesic():
     # The orbit camera on the equator at r = 12 M is the circular geodesic with
     # dphi/dt = 1/(r^1.5 + a) and dt/dtau = u^t (Bardeen, Press & Teukolsky 1972,
     # eqs. 2.16 and 2.12); its boosted frame's e_t is that 4-velocity.
-    from render.camera import observer_frame
+    from render.camera.observers import observer_frame
 
     a, r = 0.7, 12.0
     scene = default_scene(**{"animation.frames": 3, "animation.camera_path": "orbit",

@@ -7,8 +7,9 @@ import numpy as np
 import pytest
 from PIL import Image
 
-import render.output as output
-from render.output import OutputExists, atomic_write, check_free, write_npz, write_png
+import render.output.files as output
+from render.errors import OutputExists
+from render.output.files import atomic_write, check_free, write_npz, write_png
 
 
 def leftovers(folder):

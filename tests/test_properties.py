@@ -34,10 +34,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from render import default_scene
-from render.camera import camera_rays, distant_observer_rays, image_plane_grid
-from render.points import trace_bundle
-from render.spacetime import ergosphere_radius, horizon_radii, isco_radius
-from render.still import render_still
+from render.camera.observers import camera_rays, distant_observer_rays, image_plane_grid
+from render.geodesics.tracing import trace_bundle
+from render.spacetime.kerr import ergosphere_radius, horizon_radii, isco_radius
+from render.imaging.still import render_still
 
 FAST = settings(max_examples=10, deadline=None, derandomize=True,
                 suppress_health_check=[HealthCheck.too_slow])

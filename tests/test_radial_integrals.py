@@ -1,4 +1,4 @@
-"""Closed-form radial integrals (render.radial_integrals) against scipy.integrate.quad in r.
+"""Closed-form radial integrals (render.geodesics.radial_integrals) against scipy.integrate.quad in r.
 
 For rays from infinity with eta > 0 the radial parts of the azimuth and of the
 regularised delay are, written in r with dsigma = dr / sqrt(R) (Carter 1968),
@@ -22,7 +22,7 @@ import pytest
 from scipy.integrate import quad
 from scipy.special import ellipkinc
 
-from render.radial_integrals import complex_time, real_time
+from render.geodesics.radial_integrals import complex_time, real_time
 
 RNG = np.random.default_rng(31)
 TOL = 1e-9

@@ -17,7 +17,7 @@ from PIL import Image
 from scipy.integrate import quad
 
 from render import default_scene, render_still
-from render.sensor import refine_mask, subpixel_offsets
+from render.imaging.sensor import refine_mask, subpixel_offsets
 
 from conftest import run_cli  # noqa: E402
 
@@ -263,7 +263,7 @@ def test_python_api_refuses_a_bad_panorama_before_tracing(tmp_path, no_tracing):
 def test_a_sequence_frame_of_a_resting_camera_matches_the_still():
     # Sequences use the same sensor (sky, supersampling), seen from the camera's frame at the
     # frame's time: for a camera at rest the frame must be the still, pixel for pixel.
-    from render.animation import plan_sequence, render_frame
+    from render.film.sequence import plan_sequence, render_frame
 
     scene = default_scene(**{"image.width": 40, "image.height": 24, "animation.frames": 1,
                              "observer.field_of_view": 200.0, "sky.kind": "stars",
@@ -277,7 +277,7 @@ def test_a_sequence_frame_of_a_resting_camera_matches_the_still():
 
 
 def test_preview_keeps_a_looser_tolerance_and_the_api_honours_the_flag():
-    from render.sensor import preview_scene
+    from render.scene.loader import preview_scene
 
     loose = preview_scene(default_scene(**{"tracing.tolerance": 1e-4, "output.png": False}))
     assert loose["tracing.tolerance"] == 1e-4 and loose["output.png"]
@@ -293,7 +293,7 @@ def test_supersampled_still_with_an_automatic_exposure_is_refused_in_tiles(no_tr
     # cannot be shaded alone: under a budget (given to render_still, not the scene's)
     # that needs tiles, a sky and supersampling with it are refused with the one-line
     # SceneError before the kernel runs.
-    from render.scene import SceneError
+    from render.errors import SceneError
 
     scene = default_scene(**{"image.width": 64, "image.height": 48, "image.supersampling": 2,
                              "sky.kind": "stars", "observing.mode": "true_colour",
@@ -325,10 +325,10 @@ def _tiled_sensor_scene(case):
 
 
 def _three_row_budget(scene):
-    # A budget whose tiles hold 3 rows plus the halo (render.tiling's memory model), so
+    # A budget whose tiles hold 3 rows plus the halo (render.imaging.tiling's memory model), so
     # that the 40 rows make 14 bands, half of them starting on an odd row.
-    from render.sensor import HALO_ROWS
-    from render.tiling import TILE_SHARE, bytes_per_pixel
+    from render.imaging.tiling import HALO_ROWS
+    from render.imaging.tiling import TILE_SHARE, bytes_per_pixel
 
     row = scene["image.width"] * bytes_per_pixel(scene.values)
     return (3.5 + 2 * HALO_ROWS + 1) * row / TILE_SHARE
@@ -383,11 +383,11 @@ def test_tiled_sensor_still_without_its_halo_would_differ(monkeypatch, tmp_path)
     # The control of the test above: bands rendered without neighbouring rows lose the
     # star images of the cells between bands and refine their edge rows differently, so
     # the comparison above can fail.
-    import render.still
+    import render.imaging.still
 
     scene = _tiled_sensor_scene("true-colour-stars")
     whole = render_still(scene)
-    monkeypatch.setattr(render.still, "halo_rows", lambda rows, height: rows)
+    monkeypatch.setattr(render.imaging.still, "halo_rows", lambda rows, height: rows)
     alone = render_still(scene, memory_budget=_three_row_budget(scene), workdir=tmp_path)
     try:
         assert alone.metadata["tiles"]["count"] > 1
@@ -403,7 +403,7 @@ def test_tiled_still_with_a_panorama_and_full_supersampling_equals_the_untiled_o
     # pixel refined (image.adaptive off).  The bands' sample counts must add up to n^2 per
     # pixel of the whole image (a band counts its own rows, not its halo).  Same rays:
     # identical pixels and samples, composite to 1e-12 relative (summation order only).
-    from render.sky import sample_panorama_image
+    from render.imaging.sky import sample_panorama_image
 
     Image.fromarray(sample_panorama_image(32, seed=4)).save(tmp_path / "sky.png")
     scene = default_scene(**{"image.width": 40, "image.height": 40, "sky.kind": "image",

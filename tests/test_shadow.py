@@ -1,4 +1,4 @@
-"""The analytic critical curve and its moments (render.shadow)."""
+"""The analytic critical curve and its moments (render.measure.shadow)."""
 
 import math
 
@@ -7,9 +7,10 @@ import pytest
 from scipy.optimize import brentq, fsolve
 
 import render
-from render.camera import camera_rays
-from render.points import trace_bundle, trace_points
-from render.shadow import closed_curve_moments, critical_curve, shadow_moments
+from render.camera.observers import camera_rays
+from render.geodesics.tracing import trace_bundle
+from render.light.transfer import trace_points
+from render.measure.shadow import closed_curve_moments, critical_curve, shadow_moments
 from render.units import angular_gravitational_radius_uas
 
 SQRT27 = math.sqrt(27.0)
@@ -181,7 +182,7 @@ def test_finite_camera_schwarzschild_matches_synge():
 
 def test_finite_camera_kerr_matches_camera_rays_by_bisection():
     # Independent computation: bisect the capture boundary of the camera's own rays
-    # (render.camera.camera_rays + the kernel) along beta = 0; the exact camera curve
+    # (render.camera.observers.camera_rays + the kernel) along beta = 0; the exact camera curve
     # must agree to 1e-7 M, while the distant-observer curve is off by O(M / r_o).
     a, inc, r_o = 0.9, 60.0, 40.0
     m = shadow_moments(a, inc, distance=r_o)

@@ -12,11 +12,12 @@ import pytest
 from scipy.integrate import quad
 from scipy.optimize import brentq
 
-from render.camera import camera_rays, image_plane_grid
-from render.points import trace_bundle
-from render.sky import (StarField, camera_vectors, escape_directions, load_panorama,
-                        pixel_solid_angle, sample_panorama, sample_panorama_image, sky_vectors,
-                        splat_stars, star_field)
+from render.camera.observers import camera_rays, image_plane_grid
+from render.geodesics.tracing import trace_bundle
+from render.imaging.sky import (StarField, camera_vectors, load_panorama, pixel_solid_angle,
+                                sample_panorama, sample_panorama_image, sky_vectors, splat_stars,
+                                star_field)
+from render.geodesics.tracing import escape_directions
 
 TOLERANCE = 1e-10
 

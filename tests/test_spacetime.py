@@ -9,18 +9,10 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from render.spacetime import (
-    circular_orbit_angular_momentum,
-    circular_orbit_energy,
-    circular_orbit_time_component,
-    ergosphere_radius,
-    horizon_radii,
-    isco_radius,
-    keplerian_angular_velocity,
-    metric_functions,
-    photon_orbit_radii,
-    photon_orbit_radius,
-)
+from render.spacetime.kerr import (circular_orbit_angular_momentum, circular_orbit_energy,
+                                   circular_orbit_time_component, ergosphere_radius,
+                                   horizon_radii, isco_radius, keplerian_angular_velocity,
+                                   metric_functions, photon_orbit_radii, photon_orbit_radius)
 
 SPINS = [-0.99, -0.9, -0.5, 0.0, 0.3, 0.5, 0.7, 0.9, 0.998]
 

@@ -5,9 +5,9 @@ import pytest
 from scipy import integrate
 
 from render import render_still
-from render.emission import NovikovThorne
-from render.spectra import flat_space_spectrum
-from render.thermal import cgs, page_thorne_flux
+from render.light.emission import NovikovThorne
+from render.light.spectra import flat_space_spectrum
+from render.light.thermal import cgs, page_thorne_flux
 
 
 def _line(small_scene, **values):
@@ -72,7 +72,7 @@ def test_flat_space_spectrum_integrates_to_disk_luminosity():
 def test_image_spectrum_integrates_to_bolometric_image(small_scene):
     # int g^3 I_nu(nu/g) dnu = g^4 I (Misner, Thorne & Wheeler 1973, sec. 22.6): the
     # frequency integral of the ray-traced F_nu equals the summed bolometric image.
-    from render.observing import pixel_angle_rad
+    from render.light.observing import pixel_angle_rad
 
     scene = small_scene(**{"emission.law": "novikov_thorne", "observing.mode": "spectrum",
                            "black_hole.mass": 10.0, "black_hole.distance": 8e3,
@@ -94,7 +94,7 @@ def test_image_spectrum_integrates_to_bolometric_image(small_scene):
 def test_spread_histogram_spreads_uniformly_and_conserves_flux():
     # A value spread uniformly over [0.4, 0.6] puts half its weight in each of the two
     # bins it covers (exact arithmetic of a uniform distribution; common practice).
-    from render.spectra import _spread_histogram
+    from render.light.spectra import _spread_histogram
 
     edges = np.linspace(0.0, 1.0, 11)
     counts = _spread_histogram(np.array([0.5]), np.array([2.0]), np.array([0.1]),
@@ -116,14 +116,13 @@ def test_pixel_spread_smooths_the_line_profile(small_scene):
     # The relativistic line of a smooth disk is a smooth function of energy (Fabian et
     # al. 1989; Laor 1991): spreading each pixel over its own range of g must remove the
     # bin-to-bin aliasing of a histogram of pixel centres without changing the total.
-    from render.spectra import line_profile, redshift_spread
-    from render.still import observer_rays
-    from render.points import trace_bundle
-    from render.disk import on_disk, redshift_factor
+    from render.light.spectra import line_profile, redshift_spread
+    from render.geodesics.tracing import trace_bundle
+    from render.light.disk import on_disk, redshift_factor
 
     scene = small_scene(**{"black_hole.spin": 0.9, "observer.inclination": 40.0,
                            "image.width": 96, "image.height": 96})
-    _, _, bundle = observer_rays(scene)
+    _, _, bundle = scene.viewpoint().rays()
     raw = trace_bundle(bundle, scene.spin, n_record=1, stop_on_disk=True,
                        r_in=scene.inner_radius, r_out=scene["disk.outer_radius"])
     g = redshift_factor(raw["r"], bundle.lam[:, None], scene.spin)

@@ -78,7 +78,7 @@ def test_face_on_image_is_rotationally_symmetric(small_scene):
 
 @pytest.mark.parametrize("spin", [0.9, -0.5])
 def test_approaching_side_is_brighter(small_scene, spin):
-    # The disk rotates in +phi whatever the sign of spin (render.disk; for spin < 0 it
+    # The disk rotates in +phi whatever the sign of spin (render.light.disk; for spin < 0 it
     # counter-rotates with respect to the hole).  With the observer at phi = 0 and
     # alpha along +e_phi (Bardeen 1973), the gas moves towards the observer on the
     # alpha < 0 side, where lam = -alpha sin i > 0 and g = 1/(u^t (1 - Omega lam)) is

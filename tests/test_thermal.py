@@ -4,10 +4,11 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from render import spacetime
-from render.thermal import (
-    accretion_rate_g_per_s, cgs, diluted_blackbody, eddington_luminosity, page_thorne_flux,
-    page_thorne_flux_geometric, planck_bolometric, planck_nu, radiative_efficiency)
+from render.spacetime import kerr as spacetime
+from render.light.thermal import (accretion_rate_g_per_s, cgs, diluted_blackbody,
+                                  eddington_luminosity, page_thorne_flux,
+                                  page_thorne_flux_geometric, planck_bolometric, planck_nu,
+                                  radiative_efficiency)
 
 
 @pytest.mark.parametrize("spin, expected, digits", [

@@ -8,8 +8,8 @@ import pytest
 from PIL import Image
 
 from render import default_scene
-from render.animation import render_sequence
-from render.video import FLASH_AREA_FRACTION, contact_sheet, flash_check, relative_luminance
+from render.api import render_sequence
+from render.output.video import FLASH_AREA_FRACTION, contact_sheet, flash_check, relative_luminance
 
 
 @pytest.fixture(scope="module")

@@ -1,0 +1,128 @@
+"""The public front door: whole tasks (a still, a film, a measurement) from a validated Scene.
+
+The rooms below do one thing each; this module strings them together the way a
+user means it, so that the command line (:mod:`render.cli`) only parses
+arguments and prints.  Every function takes a :class:`render.scene.loader.Scene`.
+
+Examples
+--------
+>>> import render
+>>> scene = render.default_scene(**{"image.width": 8, "image.height": 8})
+>>> render.render_still(scene).pixels.shape
+(8, 8)
+"""
+
+import os
+from pathlib import Path
+
+from .errors import OutputFolderError, UsageError
+from .film.sequence import render_sequence as _render_sequence_here
+from .imaging.sensor import needs_sensor, prepare_sky
+from .imaging.still import render_still as _render_still_here
+from .light.observing import prepare_observation
+from .output.files import check_free, still_paths, write_still
+from .output.products import product_paths, write_products
+from .parallel import auto_workers, check_scheduler, connect, frame_results, render_still_on_cluster
+from .scene.loader import preview_scene
+
+__all__ = ["render_still", "make_still", "render_sequence"]
+
+
+def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps=None,
+                 scheduler=None):
+    """Render a scene's still and return its :class:`~render.imaging.result.StillResult`.
+
+    ``image.preview`` renders the quick look (:func:`render.scene.loader.preview_scene`);
+    ``scheduler`` (a Dask address) renders bands of rows on a cluster.  The other
+    arguments are those of :func:`render.imaging.still.render_still`.  Nothing is
+    written; see :func:`make_still` for the files.
+    """
+    if scene["image.preview"]:
+        scene = preview_scene(scene)
+    if scheduler:
+        if needs_sensor(scene):
+            raise UsageError("--scheduler renders bands of rows, but a sky or "
+                             "image.supersampling needs the whole image at once")
+        return render_still_on_cluster(scene, scheduler, workdir=workdir, progress=progress)
+    return _render_still_here(scene, progress, memory_budget=memory_budget, workdir=workdir,
+                              maps=maps)
+
+
+def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, scheduler=None):
+    """Render a still and publish its files; return ``(result, paths)``.
+
+    Everything that can be refused is refused before any tracing and before the
+    folder is made: the emission table and sky image are read, the targets are
+    checked free (unless ``overwrite``), the scheduler is reached, and the folder
+    is checked writable.  A still larger than ``tracing.memory_budget`` keeps its
+    maps in temporary files inside the output folder until they are written
+    (:mod:`render.imaging.tiling`); they are removed afterwards.
+    """
+    if scene["image.preview"]:
+        scene = preview_scene(scene)
+    prepare_observation(scene)   # reads an emission profile table
+    prepare_sky(scene)           # reads a sky panorama
+    folder = Path(output_dir)
+    check_free(list(still_paths(scene.document, folder).values())
+               + list(product_paths(scene.document, folder).values()), overwrite)
+    if scheduler:
+        if needs_sensor(scene):
+            raise UsageError("--scheduler renders bands of rows, but a sky or "
+                             "image.supersampling needs the whole image at once")
+        check_scheduler(scheduler)
+    _check_writable_folder(folder)
+    result = render_still(scene, progress, workdir=folder, scheduler=scheduler)
+    try:
+        paths = write_still(result, folder, overwrite=overwrite)
+        paths.update(write_products(result, folder, overwrite=overwrite))
+    finally:
+        result.release()
+    return result, paths
+
+
+def _check_writable_folder(folder):
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputFolderError(f"--output-dir {str(folder)!r} cannot be used: "
+                                f"{exc.strerror or exc}") from None
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise OutputFolderError(f"--output-dir {str(folder)!r} is not writable")
+
+
+def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, overwrite=False,
+                    progress=None, products=True):
+    """Render (or finish) a scene's frame sequence, its video, contact sheet and light curve.
+
+    Parameters
+    ----------
+    scene : Scene
+        With an ``animation`` section.
+    output_dir : str or Path
+        Frames go to ``output_dir/<scene name>/``.
+    workers : int or None
+        Local processes (1: render in this process; None: every core for a long
+        enough film, :func:`render.parallel.auto_workers`).
+    scheduler : str, optional
+        Address of a Dask distributed scheduler (e.g. ``tcp://10.0.0.5:8786``);
+        an unreachable one is refused before any file is made.
+    overwrite, progress, products
+        As for :func:`render.film.sequence.render_sequence`.
+
+    Returns
+    -------
+    render.film.sequence.SequenceResult
+    """
+    if workers is not None and workers < 1:
+        raise UsageError(f"--workers {workers} is not allowed; expected N >= 1")
+    client = connect(scheduler) if scheduler is not None else None
+    try:
+        def run_frames(jobs):
+            count = auto_workers(len(jobs)) if workers is None else workers
+            return frame_results(jobs, workers=count, client=client)
+
+        return _render_sequence_here(scene, output_dir, run_frames=run_frames,
+                                     overwrite=overwrite, progress=progress, products=products)
+    finally:
+        if client is not None:
+            client.close()

@@ -1,0 +1,452 @@
+"""The image sensor: the sky behind the disk, and supersampled, filtered pixels.
+
+What a still's picture shows, per pixel, is built here from the shaded rays
+of :mod:`render.imaging.still`:
+
+1. **Radiance of each ray** (linear): the disk's observed intensity (the
+   bolometric ``intensity``, or CIE XYZ in ``true_colour``), plus, for a ray
+   that escaped, the sky behind it: a panorama looked up at the ray's
+   direction at infinity (:mod:`render.imaging.sky`).  Captured and unresolved rays
+   add nothing (black); a ray that ended on an opaque disk sees no sky; a
+   transparent disk's orders add over the sky, as in the core.
+2. **Anti-aliasing** (``image.supersampling`` n > 1): pixels are refined with
+   n x n stratified sub-pixel rays whose positions importance-sample the
+   reconstruction filter (``box``: the pixel's square; ``tent``: the
+   separable tent of radius one pixel, 1 - |x| per axis), so each refined
+   pixel is the plain mean of its samples (filter importance sampling,
+   Pharr, Jakob & Humphreys, Physically Based Rendering, 3rd ed., sec. 7.8 and
+   13.9; the tent is the Bartlett filter).  With ``image.adaptive`` only
+   pixels that differ from a 4-neighbour in fate, in the number of
+   equatorial crossings (disk orders, photon rings) or in displayed
+   brightness by more than ``image.refine_threshold`` are refined (the
+   shadow edge, the disk edges, the rings); the others keep their centre ray.
+3. **Stars** (``sky.kind: stars``): point sources splatted with their
+   magnification from the pixel-centre rays (:func:`render.imaging.sky.splat_stars`);
+   they are not supersampled (their images are already placed to sub-pixel
+   accuracy and flux-conserving).
+4. **Display**: the exposure rule of :mod:`render.light.color` on the sum.
+
+The data maps (``r``, ``g``, ``fate``, ``intensity`` ...) stay those of the pixel
+centres; the picture's linear values are the ``composite`` product, and the
+samples per pixel the ``samples`` product.
+
+Sky brightness, against the disk's white I_w (the fixed exposure rule's
+white, or the luminance reference of ``true_colour``): a white panorama pixel
+has intensity ``sky.brightness`` x I_w; stars are drawn as flux per pixel, a
+magnitude-0 star whose whole flux lands in one pixel showing at
+``sky.star_brightness`` x I_w (so stars look the same at any resolution).  Sky light reaching a camera
+with redshift factor g (the camera's energy per energy at infinity) is
+scaled by g^4 (bolometric; I_nu/nu^3 invariant); panorama colours are not
+shifted, star colours are (a blackbody at g T).
+"""
+
+import functools
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..geodesics.integrator import FATE_ESCAPED
+from .tiling import HALO_ROWS
+
+__all__ = ["FILTERS", "SENSOR_MODES", "check_sensor", "prepare_sky", "needs_sensor",
+           "check_untiled", "halo_rows", "subpixel_offsets", "refine_mask", "finish_still"]
+
+FILTERS = ("box", "tent")
+SENSOR_MODES = ("bolometric", "true_colour")
+# What a preview renders (README, "Preview").
+def _scene_error(message):
+    from ..errors import SceneError
+
+    return SceneError(message)
+
+
+def needs_sensor(scene):
+    """Whether a still has a sky or supersampling (and so goes through :func:`finish_still`)."""
+    return scene["sky.kind"] != "none" or scene["image.supersampling"] > 1
+
+
+def check_sensor(values):
+    """Cross-key checks of the sky and anti-aliasing keys (called by scene validation)."""
+    kind = values["sky.kind"]
+    mode = values["observing.mode"]
+    if kind != "none" and values["observer.kind"] != "camera":
+        raise _scene_error(f"sky.kind = {kind!r} needs observer.kind = 'camera' (a distant "
+                           "observer's whole image lies within a vanishing solid angle of the "
+                           "sky)")
+    if kind == "image" and values["sky.image"] is None:
+        raise _scene_error("sky.kind = 'image' needs sky.image, an equirectangular (2:1) "
+                           "panorama file")
+    for key, active in (("sky.kind", kind != "none"),
+                        ("image.supersampling", values["image.supersampling"] > 1)):
+        if active and mode not in SENSOR_MODES:
+            raise _scene_error(f"{key} = {values[key]!r} needs observing.mode = "
+                               f"{' or '.join(repr(m) for m in SENSOR_MODES)} (got {mode!r})")
+
+
+def check_untiled(values, plan):
+    """A sky or supersampling in tiles needs shading that is per pixel (a fixed white).
+
+    Each band is then traced with a halo of neighbouring rows (:func:`halo_rows`),
+    so it equals the untiled render.  :func:`render.imaging.tiling.check_memory` already
+    refuses a still that needs tiles but shades the whole image at once (the
+    automatic colour exposure); this is the same rule, kept for callers that
+    plan on their own.
+    """
+    from .tiling import is_tileable
+
+    if (plan.tiles > 1 and (values["sky.kind"] != "none" or values["image.supersampling"] > 1)
+            and not is_tileable(values)):
+        raise _scene_error(
+            f"image.width x image.height = {values['image.width']} x {values['image.height']} "
+            f"does not fit tracing.memory_budget = {values['tracing.memory_budget']:g} GB "
+            "untiled, and its exposure needs the whole image at once; use a fixed colour "
+            "exposure, a smaller image or a larger budget")
+
+
+# Rows of neighbours a band of a tiled still is traced with, above and below its own.
+# The refinement mask compares a pixel with its 4-neighbours (one row); a star image
+# lands in a pixel from the cells (row pairs) above and below it, and those cells use
+# the lens map's Jacobian at their corners, a central difference over one more row:
+# two rows.  The haloed band starts on an even image row, so that the star kernel's
+# two passes (even and odd cell rows) add into each pixel in the untiled order.
+
+
+def halo_rows(rows, height):
+    """The rows (first, stop) to trace for the band ``rows = (start, stop)`` of a tiled still.
+
+    Examples
+    --------
+    >>> halo_rows((5, 9), 12), halo_rows((0, 4), 12), halo_rows((8, 12), 12)
+    ((2, 11), (0, 6), (6, 12))
+    """
+    start, stop = rows
+    first = max(0, start - HALO_ROWS - start % 2)
+    return first, min(height, stop + HALO_ROWS)
+
+
+@dataclass
+class Sky:
+    """A prepared sky: the panorama (linear RGB) or the star field, and its settings."""
+
+    kind: str
+    panorama: np.ndarray = None
+    stars: object = None
+    source: str = None
+
+
+@functools.lru_cache(maxsize=4)
+def _panorama(path, mtime_ns, size):
+    from .sky import load_panorama
+
+    texture = load_panorama(path)
+    texture.setflags(write=False)   # shared by every render that uses this file
+    return texture
+
+
+@functools.lru_cache(maxsize=4)
+def _stars(density, seed):
+    from .sky import star_field
+
+    stars = star_field(density, seed)
+    for array in (stars.directions, stars.flux, stars.temperature):
+        array.setflags(write=False)   # shared by every render with this density and seed
+    return stars
+
+
+def _resolve(scene, name):
+    path = Path(name)
+    if not path.is_absolute() and scene.source not in ("<defaults>", "<dict>"):
+        path = Path(scene.source).parent / path
+    return path
+
+
+def prepare_sky(scene):
+    """Read the panorama or draw the stars of a scene; a bad file raises SceneError.
+
+    Called before any tracing (the command line calls it before it makes any
+    file); results are cached, so the render reuses them.
+    """
+    from .sky import SkyImageError
+
+    kind = scene["sky.kind"]
+    if kind == "none":
+        return Sky(kind)
+    if kind == "stars":
+        return Sky(kind, stars=_stars(float(scene["sky.star_density"]), int(scene["sky.seed"])))
+    path = _resolve(scene, scene["sky.image"])
+    try:
+        stat = path.stat()
+        texture = _panorama(str(path), stat.st_mtime_ns, stat.st_size)
+    except OSError as exc:
+        raise _scene_error(f"sky.image = {scene['sky.image']!r} cannot be read: "
+                           f"{exc.strerror or exc}") from None
+    except SkyImageError as exc:
+        raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc}") from None
+    return Sky(kind, panorama=texture, source=str(path))
+
+
+# --- Anti-aliasing ----------------------------------------------------------------------
+
+
+def _tent_inverse_cdf(u):
+    """Inverse CDF of the tent 1 - |x| on [-1, 1] (exact)."""
+    u = np.asarray(u, dtype=float)
+    return np.where(u < 0.5, np.sqrt(2.0 * u) - 1.0, 1.0 - np.sqrt(2.0 * (1.0 - u)))
+
+
+def subpixel_offsets(n, kind="tent"):
+    """n x n sample offsets (pixel units, x right, y up) importance-sampling a filter.
+
+    The strata are the n x n cells of the unit square, sampled at their
+    centres (deterministic, so renders are reproducible) and mapped through
+    the filter's inverse CDF per axis.
+
+    Parameters
+    ----------
+    n : int
+        Samples per axis.
+    kind : {"box", "tent"}
+
+    Returns
+    -------
+    ndarray (n * n, 2)
+
+    References
+    ----------
+    Pharr, Jakob & Humphreys, Physically Based Rendering (3rd ed.), sec. 7.8, 13.9.
+
+    Examples
+    --------
+    >>> subpixel_offsets(2, "box").tolist()
+    [[-0.25, -0.25], [0.25, -0.25], [-0.25, 0.25], [0.25, 0.25]]
+    """
+    u = (np.arange(n) + 0.5) / n
+    if kind == "box":
+        axis = u - 0.5
+    elif kind == "tent":
+        axis = _tent_inverse_cdf(u)
+    else:
+        raise ValueError(f"filter must be one of {', '.join(FILTERS)}, got {kind!r}")
+    x, y = np.meshgrid(axis, axis)
+    return np.stack([x.ravel(), y.ravel()], axis=-1)
+
+
+def refine_mask(fate, crossings, display, threshold):
+    """Pixels that differ from a 4-neighbour in fate, crossings or displayed brightness.
+
+    Parameters
+    ----------
+    fate, crossings : ndarray (H, W) of int
+    display : ndarray (H, W)
+        Displayed brightness in [0, 1] (after the exposure rule).
+    threshold : float
+        Smallest difference of ``display`` that counts.
+
+    Returns
+    -------
+    ndarray (H, W) of bool
+
+    Examples
+    --------
+    >>> f = np.zeros((3, 3), int); f[1, 1] = 1
+    >>> refine_mask(f, np.zeros((3, 3), int), np.zeros((3, 3)), 0.1).astype(int).tolist()
+    [[0, 1, 0], [1, 1, 1], [0, 1, 0]]
+    """
+    mask = np.zeros(fate.shape, dtype=bool)
+    for axis in (0, 1):
+        a = [slice(None)] * 2
+        b = [slice(None)] * 2
+        a[axis] = slice(1, None)
+        b[axis] = slice(None, -1)
+        a, b = tuple(a), tuple(b)
+        differ = ((fate[a] != fate[b]) | (crossings[a] != crossings[b])
+                  | (np.abs(display[a] - display[b]) > threshold))
+        mask[a] |= differ
+        mask[b] |= differ
+    return mask
+
+
+# --- One still's picture ----------------------------------------------------------------
+
+
+def _white(observation, scene, shaded):
+    if observation.mode == "true_colour":
+        return float(shaded.info["colour_reference_y"])
+    return float(observation.law.reference_intensity(scene.inner_radius,
+                                                     scene["disk.outer_radius"]))
+
+
+def _disk_radiance(observation, shaded):
+    if observation.mode == "true_colour":
+        return np.asarray(shaded.products["xyz"], dtype=float)
+    return np.asarray(shaded.intensity, dtype=float)[:, None]
+
+
+def _panorama_radiance(sky, observation, raw, bundle, scene, white, directions):
+    """Sky radiance (N, C) behind each escaped ray (0 elsewhere)."""
+    from ..light.cie import xyz_to_linear_srgb_matrix
+    from .sky import sample_panorama
+
+    theta, phi = directions
+    rgb = sample_panorama(sky.panorama, theta, phi)
+    g = np.broadcast_to(np.asarray(bundle.energy_ratio, dtype=float), theta.shape)
+    scale = scene["sky.brightness"] * white * g ** 4
+    if observation.mode == "true_colour":
+        value = rgb @ np.linalg.inv(xyz_to_linear_srgb_matrix()).T
+    else:
+        value = rgb @ np.array([0.2126, 0.7152, 0.0722])[:, None]   # sRGB luminance weights
+    value *= scale[:, None]
+    value[raw["fate"] != FATE_ESCAPED] = 0.0
+    return value
+
+
+def _display(observation, scene, composite, white):
+    """8-bit sRGB pixels (and 16-bit for true colour) of linear composite values."""
+    from ..light.color import expose_true_colour, srgb_encode, to_uint16, to_uint8, tone_map
+
+    if observation.mode == "true_colour":
+        encoded = srgb_encode(expose_true_colour(composite, white, scene["output.exposure"]))
+        return to_uint8(encoded), to_uint16(encoded)
+    return to_uint8(srgb_encode(tone_map(composite[:, 0], white, scene["output.exposure"]))), None
+
+
+def _brightness(observation, scene, composite, white):
+    """Displayed brightness in [0, 1] (the refinement criterion)."""
+    y = composite[:, 1] if observation.mode == "true_colour" else composite[:, 0]
+    x = scene["output.exposure"] * np.clip(np.nan_to_num(y), 0.0, None) / white
+    return x / (1.0 + x)
+
+
+def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, own=None,
+                 white=None, velocity=None):
+    """Composite sky and disk, supersample, add stars; return the updated Shaded.
+
+    Parameters
+    ----------
+    scene, observation :
+        The scene and its prepared observation.
+    shaded : Shaded
+        The pixel centres' shading (:func:`render.light.observing.shade`).
+    raw : dict
+        The pixel centres' kernel output (with ``final_state`` for a camera sky).
+    bundle : RayBundle
+    alpha, beta : ndarray (H, W)
+        Pixel centres in the image plane (M).
+    trace : callable
+        ``trace(x, y, bundle) -> (raw, shaded)``: traces and shades the extra
+        rays of image-plane points (x, y) as the centre rays were
+        (:func:`render.imaging.still.trace_and_shade`); only used with supersampling.
+    own : (start, stop), optional
+        Rows of the given arrays that are the band's own (a band of a tiled
+        still traced with a halo of neighbouring rows, :func:`halo_rows`): only
+        they are refined and counted, and only their values are meant to be
+        kept; the halo rows give them the neighbours they have untiled.
+        Default: all rows.
+    white : float, optional
+        The exposure's white (default: the still's own, as the observing mode sets it;
+        a sequence passes its one white for all frames).
+    velocity : array_like (3,), optional
+        A moving camera's velocity (:func:`render.camera.observers.camera_rays`), for the extra rays.
+    """
+    from .sky import camera_vectors, sky_vectors, splat_stars
+    from ..geodesics.tracing import escape_directions
+
+    height, width = alpha.shape
+    lo, hi = (0, height) if own is None else own
+    if (lo, hi) != (0, height):
+        from .tiling import is_tileable
+
+        if not is_tileable(scene.values):
+            raise _scene_error("observing.colour_exposure = 'auto' needs the whole image at "
+                               "once; a band of rows cannot be finished alone")
+    sky = prepare_sky(scene)
+    white = _white(observation, scene, shaded) if white is None else float(white)
+    tolerance = scene["tracing.tolerance"]
+    centre_dirs = None
+    composite = _disk_radiance(observation, shaded).copy()
+    if sky.kind != "none":
+        centre_dirs = escape_directions(bundle, raw, scene.spin, tolerance,
+                                        scene["tracing.max_steps"])
+    if sky.kind == "image":
+        composite += _panorama_radiance(sky, observation, raw, bundle, scene, white,
+                                        centre_dirs)
+    info = dict(shaded.info)
+    samples = np.ones(height * width, dtype=np.int32)
+    n = scene["image.supersampling"]
+    if n > 1:
+        if scene["image.adaptive"]:
+            fate = raw["fate"].reshape(height, width)
+            crossings = np.minimum(raw["n_crossings"], scene["disk.orders"] + 1).reshape(
+                height, width)
+            display = _brightness(observation, scene, composite, white).reshape(height, width)
+            mask = refine_mask(fate, crossings, display, scene["image.refine_threshold"])
+        else:
+            mask = np.ones((height, width), dtype=bool)
+        mask[:lo] = False   # a halo row is only a neighbour here
+        mask[hi:] = False
+        chosen = np.nonzero(mask.ravel())[0]
+        offsets = subpixel_offsets(n, scene["image.filter"])
+        roll = math.radians(scene["observer.roll"])
+        pixel = scene["observer.field_of_view"] / scene["image.width"]
+        ox = (math.cos(roll) * offsets[:, 0] - math.sin(roll) * offsets[:, 1]) * pixel
+        oy = (math.sin(roll) * offsets[:, 0] + math.cos(roll) * offsets[:, 1]) * pixel
+        x = (alpha.ravel()[chosen][:, None] + ox[None, :]).ravel()
+        y = (beta.ravel()[chosen][:, None] + oy[None, :]).ravel()
+        if x.size:
+            sub_bundle = scene.viewpoint().rays_at(x, y, velocity)
+            sub_raw, sub_shaded = trace(x, y, sub_bundle)
+            value = _disk_radiance(observation, sub_shaded)
+            if sky.kind == "image":
+                value = value + _panorama_radiance(
+                    sky, observation, sub_raw, sub_bundle, scene, white,
+                    escape_directions(sub_bundle, sub_raw, scene.spin, tolerance,
+                                      scene["tracing.max_steps"]))
+            composite[chosen] = value.reshape(chosen.size, n * n, -1).mean(axis=1)
+            samples[chosen] = n * n
+        info["antialias"] = {
+            "supersampling": n, "filter": scene["image.filter"],
+            "adaptive": scene["image.adaptive"], "pixels_refined": int(chosen.size),
+            "pixels": int((hi - lo) * width),
+            "samples_total": int(samples[lo * width:hi * width].sum()),
+            "samples_per_pixel_mean": float(samples[lo * width:hi * width].mean()),
+            "data_maps": "evaluated at pixel centres; only 'composite' and the picture are "
+                         "supersampled"}
+    if sky.kind != "none":
+        sky_info = {"kind": sky.kind,
+                    "convention": "equirectangular: row 0 at theta = 0 (spin axis), phi grows "
+                                  "to the left, phi = 0 at the left and right edges"}
+        if sky.kind == "image":
+            sky_info.update({"image": sky.source, "brightness": scene["sky.brightness"]})
+        else:
+            theta, phi = centre_dirs
+            directions = sky_vectors(theta, phi).reshape(height, width, 3)
+            distance = scene["observer.distance"]
+            cam = camera_vectors(alpha, beta, distance)
+            g = np.broadcast_to(np.asarray(bundle.energy_ratio, dtype=float),
+                                theta.shape).reshape(height, width)
+            colour = observation.mode == "true_colour"
+            # A band counts the skipped triangles of its own cell rows only (cells lo..hi-1).
+            flux, images, skipped = splat_stars(sky.stars, directions, cam, g, colour=colour,
+                                                cells=(lo, hi))
+            # Drawn as flux per pixel (a point source has no surface brightness to keep).
+            composite += (flux * scene["sky.star_brightness"] * white).reshape(
+                height * width, -1)
+            sky_info.update({"star_brightness": scene["sky.star_brightness"],
+                             "stars": len(sky.stars), "star_density_per_deg2":
+                             scene["sky.star_density"], "seed": scene["sky.seed"],
+                             "star_images": float(images[lo:hi].sum()),
+                             "sky_triangles_skipped": skipped,
+                             "magnitudes": "0 to 8, dN/dm ~ 10^(0.6 m)"})
+        info["sky"] = sky_info
+    pixels, pixels16 = _display(observation, scene, composite, white)
+    products = dict(shaded.products)
+    products["composite"] = composite[:, 0] if composite.shape[1] == 1 else composite
+    products["samples"] = samples
+    if pixels16 is not None:
+        products["pixels16"] = pixels16
+    from ..light.observing import Shaded
+
+    return Shaded(intensity=shaded.intensity, pixels=pixels, products=products,
+                  tables=shaded.tables, info=info)

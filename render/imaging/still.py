@@ -1,0 +1,191 @@
+"""Rendering one still: scene -> camera -> geodesics (+ disk) -> emission -> arrays."""
+
+import dataclasses
+import time
+
+import numpy as np
+
+from ..about import __version__
+from ..light.disk import on_disk, redshift_factor
+from ..light.observing import PER_ORDER_PRODUCTS, prepare_observation, shade
+from ..geodesics.integrator import FATE_DISK, FATE_NAMES
+from ..geodesics.tracing import energy_signs, trace
+from ..spacetime.kerr import horizon_radii, isco_radius
+from .result import StillResult
+from .tiling import plan_still, render_in_tiles
+from .sensor import check_untiled, finish_still, halo_rows, needs_sensor, prepare_sky
+
+__all__ = ["StillResult", "render_still", "trace_and_shade", "shining_crossings"]
+
+
+def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps=None):
+    """Render a validated :class:`~render.scene.loader.Scene` and return a :class:`StillResult`.
+
+    ``progress(done, total)`` is called as rays finish (e.g. a
+    :class:`render.progress.RayProgress` bar).
+
+    Examples
+    --------
+    >>> from render import default_scene
+    >>> result = render_still(default_scene(**{"image.width": 8, "image.height": 8}))
+    >>> result.intensity.shape
+    (8, 8)
+
+    A still larger than ``tracing.memory_budget`` (or ``memory_budget``, in
+    bytes) is rendered in bands of rows whose arrays go to temporary files in
+    ``workdir`` (see :mod:`render.imaging.tiling`); call ``result.release()`` when done.
+
+    ``maps`` asks for the ``phi`` and ``delay`` maps; by default (None) they are
+    computed when the scene writes its data maps (``output.npz``).  The integrator
+    produces them anyway; the closed form (``tracing.method``) skips them when they
+    are not asked for, and they are then NaN.  The image needs neither.
+    """
+    if maps is None:
+        maps = bool(scene["output.npz"])
+    plan = plan_still(scene, memory_budget)
+    # A budget given here (not the scene's) may call for tiles that a sky or
+    # supersampling cannot use: refuse before any tracing, as the scene check does.
+    check_untiled(scene.values, plan)
+    # Emission law and observing mode first: a bad profile table fails before any tracing.
+    observation = prepare_observation(scene)
+    if needs_sensor(scene):
+        prepare_sky(scene)  # a bad sky image fails before any tracing too
+    if plan.tiles == 1:
+        return _render_band(scene, observation, None, progress, maps)
+    return render_in_tiles(
+        scene, plan, lambda rows, band_progress: _render_band(scene, observation, rows,
+                                                              band_progress, maps),
+        workdir=workdir, progress=progress)
+
+
+def _render_band(scene, observation, rows, progress, maps=True):
+    """Render the image rows ``rows = (start, stop)`` (all rows if None) as a StillResult."""
+    started = time.perf_counter()
+    width, height = scene["image.width"], scene["image.height"]
+    if rows is not None:
+        height = rows[1] - rows[0]
+    orders = scene["disk.orders"]
+    spin = scene.spin
+    r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
+    sensor = needs_sensor(scene)
+    # A band with a sky or supersampling is traced with a halo of neighbouring rows
+    # (render.imaging.sensor.halo_rows), so that its refinement and star images see the
+    # neighbours they see untiled; only the band's own rows are kept.
+    traced_rows = halo_rows(rows, scene["image.height"]) if sensor and rows is not None else rows
+    alpha, beta, bundle = scene.viewpoint().rays(traced_rows)
+    method = scene.trace_settings().method
+    band_progress = progress
+    if progress is not None and traced_rows != rows:
+        traced_total = alpha.size
+
+        def band_progress(done, total):   # the halo's rays are not counted twice
+            progress(done * height * width // traced_total, height * width)
+    raw, g, hits, shaded = trace_and_shade(scene, observation, alpha, beta, bundle,
+                                           band_progress, maps)
+    traced = time.perf_counter()
+    if sensor:
+        # The sky behind the disk, supersampling and stars (render.imaging.sensor).
+        own = None if traced_rows == rows else (rows[0] - traced_rows[0],
+                                                rows[1] - traced_rows[0])
+        shaded = finish_still(scene, observation, shaded, raw, bundle, alpha, beta,
+                              lambda x, y, more: _traced_and_shaded(scene, observation, x, y,
+                                                                    more), own=own)
+    negative = energy_signs(bundle) < 0.0
+    if traced_rows != rows:
+        keep = slice(own[0] * width, own[1] * width)
+        n_traced = alpha.size
+
+        def cut(a):
+            return a[keep] if isinstance(a, np.ndarray) and a.ndim and len(a) == n_traced else a
+
+        raw = {name: cut(a) for name, a in raw.items()}
+        g, hits, negative = cut(g), cut(hits), cut(negative)
+        shaded = dataclasses.replace(
+            shaded, intensity=cut(shaded.intensity), pixels=cut(shaded.pixels),
+            products={name: cut(a) for name, a in shaded.products.items()})
+        alpha, beta = alpha[own[0]:own[1]], beta[own[0]:own[1]]
+    intensity, pixels = shaded.intensity, shaded.pixels
+
+    def image(a):
+        return a.reshape((height, width) + a.shape[1:])
+
+    def stack(a):
+        if a.strides == (0, 0):   # a map the closed form skipped: all NaN, no memory
+            return np.broadcast_to(np.nan, (orders, height, width))
+        return np.ascontiguousarray(np.moveaxis(a, 1, 0).reshape(orders, height, width))
+
+    fate = image(raw["fate"])
+    counts = {name: int(np.count_nonzero(fate == code)) for code, name in FATE_NAMES.items()}
+    r_plus, _ = horizon_radii(spin)
+    metadata = {
+        "program": "nullray", "version": __version__,
+        "scene": scene.document, "scene_source": scene.source,
+        "units": "geometric, G = c = M = 1: lengths and times in M, angles in rad",
+        "conventions": {
+            "alpha": "image-plane x in M, to the right (Bardeen 1973)",
+            "beta": "image-plane y in M, up along the projected spin axis",
+            "rows": "row 0 is the top of the image",
+            "order": "n counts all earlier crossings of the equatorial plane",
+            "fate_codes": {str(k): v for k, v in FATE_NAMES.items()},
+            "g": "nu_obs / nu_em; NaN inside the ISCO",
+            "delay": "(t_obs - t_em) - (r*_obs - r*_em), dr*/dr = (r^2+a^2)/Delta",
+            "exposure": "display = x/(1+x), x = exposure * I / I_em(r_in); then sRGB",
+        },
+        "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": r_in,
+        "outer_radius": r_out, "fate_counts": counts,
+        # Photons of negative conserved energy (a camera inside the ergoregion).
+        "negative_energy_rays": int(np.count_nonzero(negative)),
+        "tracing_method": method,
+        # False when the closed form skipped the phi and delay maps (then NaN).
+        "phi_delay_maps": bool(maps or method == "integrate"),
+        "steps_mean": float(raw["steps"].mean()),
+        "observing": shaded.info,
+        "trace_seconds": traced - started, "total_seconds": time.perf_counter() - started,
+    }
+    return StillResult(
+        intensity=image(intensity), pixels=image(pixels), fate=fate, alpha=alpha, beta=beta,
+        r=stack(raw["r"]), phi=stack(raw["phi"]), g=stack(g), delay=stack(raw["delay"]),
+        on_disk=stack(hits), steps=image(raw["steps"]), metadata=metadata,
+        products={k: stack(v) if k in PER_ORDER_PRODUCTS else image(v)
+                  for k, v in shaded.products.items()},
+        tables=shaded.tables)
+
+
+def _traced_and_shaded(scene, observation, x, y, bundle):
+    # Extra rays (supersampling) feed only the picture: no phi/delay maps needed.
+    raw, _, _, shaded = trace_and_shade(scene, observation, x, y, bundle, maps=False)
+    return raw, shaded
+
+
+def trace_and_shade(scene, observation, alpha, beta, bundle, progress=None, maps=True):
+    """Trace a bundle as the scene asks and shade its disk crossings.
+
+    ``alpha, beta`` are the rays' image-plane points (M).  Returns
+    ``(raw, g, hits, shaded)``: the kernel's arrays, the redshift
+    factors and shining crossings (N, orders), and the observing mode's
+    :class:`~render.light.observing.Shaded`.  A camera with a sky also keeps each
+    ray's final state (for its direction at infinity, :mod:`render.imaging.sky`).
+    ``maps=False`` lets the closed form skip phi and the delay (NaN then).
+    """
+    raw = trace(scene.trace_settings(), alpha, beta, bundle, progress, maps)
+    g, hits = shining_crossings(scene, raw, bundle)
+    shaded = shade(observation, scene, raw, g, hits, bundle)
+    return raw, g, hits, shaded
+
+
+def shining_crossings(scene, raw, bundle):
+    """(g, hits) of traced rays: redshift factors and the crossings that shine, (N, orders).
+
+    A crossing shines if it lies on the disk; for an opaque disk only the one that
+    ended the ray does (earlier ones missed the disk).
+    """
+    orders = scene["disk.orders"]
+    g = redshift_factor(raw["r"], bundle.lam[:, None], scene.spin, bundle.energy_ratio[:, None])
+    hits = on_disk(raw["r"], scene.inner_radius, scene["disk.outer_radius"])
+    if scene["disk.surface"] == "opaque":
+        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
+        keep = np.zeros_like(hits)
+        rows = np.nonzero((raw["fate"] == FATE_DISK) & (raw["n_crossings"] <= orders))[0]
+        keep[rows, last[rows]] = True
+        hits &= keep
+    return g, hits

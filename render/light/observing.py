@@ -1,0 +1,334 @@
+"""Observing modes: what a still measures from the disk crossings of its rays.
+
+Modes (scene key ``observing.mode``):
+
+bolometric
+    I = sum over orders of g^4 I_em(r) L(mu): the emission law's units (cgs
+    erg s^-1 cm^-2 sr^-1 for ``novikov_thorne``, arbitrary otherwise).
+monochromatic
+    I_nu = sum of g^3 I_nu,em(nu / g, r) L(mu) at the observed frequency (given
+    as frequency, wavelength or photon energy), erg s^-1 cm^-2 Hz^-1 sr^-1; with
+    the mass and distance, the flux density per pixel (Jy) and the total.
+true_colour
+    CIE XYZ of the observed spectrum of each pixel, then sRGB (:mod:`render.light.cie`,
+    :mod:`render.light.color`).  A colour-corrected blackbody of colour temperature
+    T_c seen with factor g is exactly f^-4 B_nu(g T_c) (I_nu/nu^3 invariant), so
+    XYZ = sum L(mu) f^-4 XYZ_bb(g T_c): one precomputed table, no per-pixel loop.
+spectrum
+    Disk-integrated F_nu (Jy) on a log frequency grid, from the ray-traced image
+    (all relativistic effects) and from the same local emission in flat space
+    (no light bending, no Doppler or gravitational shift, seen at the same
+    inclination).
+line
+    A narrow line at rest energy E0 with the emission law as emissivity: each
+    pixel adds photons at E = g E0 with weight g^3 eps(r) L(mu) (photon number;
+    energy flux weight g^4 eps L).  Normalised counts per energy bin.
+
+L(mu) is the limb-darkening factor of :func:`render.light.emission.limb_darkening`
+at the emission angle in the emitter's frame (:func:`render.light.emission.emission_cosine`).
+"""
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .color import (automatic_reference_luminance, desaturate_into_gamut, expose_linear_srgb,
+                    srgb_encode, to_uint8, to_uint16, tone_map, xyz_to_linear_srgb)
+from .emission import (EmissionTableError, NovikovThorne, PowerLaw, RadialProfile,
+                       emission_cosine, limb_darkening, observed_bolometric)
+
+__all__ = ["MODES", "Observation", "Shaded", "prepare_observation", "shade",
+           "check_observing", "observing_frequency_hz", "pixel_angle_rad"]
+
+MODES = ("bolometric", "monochromatic", "true_colour", "spectrum", "line")
+THERMAL_MODES = ("monochromatic", "true_colour", "spectrum")
+# Products with one value per order (shape (N, orders)); the others are per pixel.
+PER_ORDER_PRODUCTS = ("emission_cosine",)
+
+
+def _scene_error(message):
+    from ..errors import SceneError
+
+    return SceneError(message)
+
+
+def check_observing(values):
+    """Cross-key checks of the emission and observing keys (called by scene validation)."""
+    mode = values["observing.mode"]
+    law = values["emission.law"]
+    bands = [k for k in ("observing.frequency", "observing.wavelength", "observing.photon_energy")
+             if values[k] is not None]
+    if mode == "monochromatic" and len(bands) != 1:
+        raise _scene_error("observing.mode = 'monochromatic' needs exactly one of "
+                           "observing.frequency (Hz), observing.wavelength (nm) or "
+                           f"observing.photon_energy (keV); got {len(bands)}")
+    if mode in THERMAL_MODES and law != "novikov_thorne":
+        raise _scene_error(f"observing.mode = {mode!r} needs a spectrum: emission.law = "
+                           f"'novikov_thorne' (got {law!r})")
+    if law == "profile" and values["emission.profile"] is None:
+        raise _scene_error("emission.law = 'profile' needs emission.profile, a CSV file of "
+                           "'r, emissivity'")
+    if (mode == "true_colour" and values["observing.colour_exposure"] == "fixed"
+            and values["observing.colour_reference"] is None):
+        raise _scene_error("observing.colour_exposure = 'fixed' needs observing.colour_reference "
+                           "(the luminance Y shown as white, erg s^-1 cm^-2 sr^-1)")
+    if not values["observing.spectrum_high"] > values["observing.spectrum_low"]:
+        raise _scene_error(f"observing.spectrum_high = {values['observing.spectrum_high']!r} is "
+                           "not allowed; expected a frequency above observing.spectrum_low")
+    if not values["observing.line_high"] > values["observing.line_low"]:
+        raise _scene_error(f"observing.line_high = {values['observing.line_high']!r} is not "
+                           "allowed; expected a value above observing.line_low")
+
+
+def observing_frequency_hz(scene):
+    """The observed frequency in Hz from frequency, wavelength (nm) or photon energy (keV)."""
+    from .thermal import cgs
+
+    k = cgs()
+    if scene["observing.frequency"] is not None:
+        return float(scene["observing.frequency"])
+    if scene["observing.wavelength"] is not None:
+        return k["c"] / (scene["observing.wavelength"] * 1e-7)
+    if scene["observing.photon_energy"] is not None:
+        return scene["observing.photon_energy"] * k["keV"] / k["h"]
+    return None
+
+
+def pixel_angle_rad(scene):
+    """Angular width of one pixel (rad) from field of view, mass and distance."""
+    from ..units import angular_gravitational_radius_uas
+
+    theta_g_uas = angular_gravitational_radius_uas(scene["black_hole.mass"],
+                                                   scene["black_hole.distance"])
+    return scene["observer.field_of_view"] / scene["image.width"] * theta_g_uas * np.pi / (
+        180.0 * 3600.0 * 1e6)
+
+
+@dataclass
+class Observation:
+    """What a scene asks to measure, prepared before tracing (law built, tables read)."""
+
+    mode: str
+    law: object
+    limb: str
+    frequency_hz: float = None
+    accretion_rate_g_s: float = None
+    efficiency: float = None
+    info: dict = field(default_factory=dict)
+
+
+def _resolve_profile_path(scene):
+    path = Path(scene["emission.profile"])
+    if not path.is_absolute() and scene.source not in ("<defaults>", "<dict>"):
+        path = Path(scene.source).parent / path
+    return path
+
+
+def prepare_observation(scene):
+    """Build the emission law and the mode's settings; bad input raises SceneError."""
+    from .thermal import accretion_rate_g_per_s, radiative_efficiency
+
+    name = scene["emission.law"]
+    info = {"mode": scene["observing.mode"], "law": name,
+            "limb_darkening": scene["emission.limb_darkening"]}
+    obs = Observation(mode=scene["observing.mode"], law=None,
+                      limb=scene["emission.limb_darkening"])
+    if name == "power_law":
+        obs.law = PowerLaw(index=scene["emission.index"])
+    elif name == "profile":
+        path = _resolve_profile_path(scene)
+        try:
+            obs.law = RadialProfile.from_csv(path)
+        except EmissionTableError as exc:
+            raise _scene_error(str(exc)) from None
+        info["profile"] = str(path)
+    else:
+        mass = scene["black_hole.mass"]
+        unit = scene["emission.accretion_unit"]
+        mdot = accretion_rate_g_per_s(scene["emission.accretion_rate"], unit, mass_msun=mass,
+                                      spin=scene.spin, opacity=scene["emission.opacity"])
+        obs.accretion_rate_g_s = mdot
+        obs.efficiency = radiative_efficiency(scene.spin)
+        obs.law = NovikovThorne(spin=scene.spin, mass_msun=mass, accretion_rate_g_s=mdot,
+                                colour_correction=scene["emission.colour_correction"])
+        info.update({"accretion_rate_g_s": float(mdot), "radiative_efficiency": obs.efficiency,
+                     "colour_correction": scene["emission.colour_correction"],
+                     "eddington_assumes": "L = radiative_efficiency * Mdot c^2, L_Edd = "
+                     "4 pi G M c / kappa, kappa = emission.opacity or sigma_T/m_p"})
+    if obs.mode == "monochromatic":
+        obs.frequency_hz = observing_frequency_hz(scene)
+        info["frequency_hz"] = obs.frequency_hz
+    obs.info = info
+    return obs
+
+
+@dataclass
+class Shaded:
+    """Per-ray shading results (flat, N rays) of one observing mode."""
+
+    intensity: np.ndarray
+    pixels: np.ndarray
+    products: dict = field(default_factory=dict)
+    tables: dict = field(default_factory=dict)
+    info: dict = field(default_factory=dict)
+
+
+def _weights(obs, r, eta, g, energy_ratio, hits):
+    mu = emission_cosine(r, eta, g, energy_ratio)
+    return mu, np.where(hits, limb_darkening(mu, obs.limb), 0.0)
+
+
+def _summed(values, hits):
+    with np.errstate(invalid="ignore"):
+        values = np.where(hits, values, 0.0)
+    return np.nan_to_num(values, nan=0.0).sum(axis=1)
+
+
+def disk_reaches_border(hits, height, width):
+    """Whether any crossing that shines lies in the outermost ring of pixels.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> hits = np.zeros((9, 1), dtype=bool); hits[4] = True   # the centre of 3 x 3
+    >>> disk_reaches_border(hits, 3, 3)
+    False
+    """
+    grid = np.asarray(hits).reshape(height, width, -1).any(axis=2)
+    return bool(grid[0].any() or grid[-1].any() or grid[:, 0].any() or grid[:, -1].any())
+
+
+def shade(obs, scene, raw, g, hits, bundle):
+    """Shade the crossings of a traced bundle for the prepared observation.
+
+    Parameters
+    ----------
+    obs : Observation
+    scene : Scene
+    raw : dict
+        Output of :func:`render.geodesics.tracing.trace_bundle` (``r`` of shape (N, orders)).
+    g : ndarray (N, orders)
+        Redshift factors.
+    hits : ndarray of bool (N, orders)
+        Crossings that shine.
+    bundle : RayBundle
+
+    Returns
+    -------
+    Shaded
+    """
+    r = raw["r"]
+    law = obs.law
+    r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
+    mu, weight = _weights(obs, r, bundle.eta[:, None], g, bundle.energy_ratio[:, None], hits)
+    with np.errstate(invalid="ignore"):
+        bolometric = _summed(observed_bolometric(g, law.intensity(r)) * weight, hits)
+    info = dict(obs.info)
+    products = {}
+    if obs.limb != "none" or obs.mode != "bolometric" or law.name != "power_law":
+        products["emission_cosine"] = np.where(hits, mu, np.nan)
+    tables = {}
+    exposure = scene["output.exposure"]
+    white = law.reference_intensity(r_in, r_out)
+    intensity = bolometric
+    if obs.mode == "monochromatic":
+        from .emission import observed_specific_intensity
+
+        intensity = _summed(observed_specific_intensity(obs.frequency_hz, g, r, law) * weight,
+                            hits)
+        radii = np.geomspace(r_in, r_out, 2000)
+        white = float(np.max(law.specific_intensity(obs.frequency_hz, radii))) or 1.0
+        products["specific_intensity"] = intensity
+        products["bolometric_intensity"] = bolometric
+        info["units"] = "intensity: erg s^-1 cm^-2 Hz^-1 sr^-1"
+        _add_flux(scene, intensity, products, info)
+    pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
+    if obs.mode == "true_colour":
+        pixels, colour_products, colour_info = _true_colour(obs, scene, r, g, weight, hits)
+        products.update(colour_products)
+        info.update(colour_info)
+    if obs.mode in ("spectrum", "line"):
+        # These modes always see the whole image (they are never tiled): a disk
+        # that reaches the border is cropped, and the totals miss what lies outside.
+        cropped = disk_reaches_border(hits, scene["image.height"], scene["image.width"])
+        if cropped:
+            info.setdefault("warnings", []).append(
+                f"the disk reaches the image border: the {obs.mode} counts only what the "
+                "field of view contains (widen observer.field_of_view)")
+    if obs.mode == "spectrum":
+        tables["spectrum"] = disk_spectrum(obs, scene, r, g, weight, hits)
+        info["spectrum_total_jy"] = {
+            "relativistic_peak": float(tables["spectrum"]["flux_relativistic_jy"].max()),
+            "flat_peak": float(tables["spectrum"]["flux_flat_jy"].max())}
+    elif obs.mode == "line":
+        from .spectra import line_profile, redshift_spread
+
+        spread = redshift_spread(g, hits, scene["image.height"], scene["image.width"])
+        line, image, line_info = line_profile(
+            g, law.intensity(r) * weight, hits, scene["observing.line_energy"],
+            scene["observing.line_bins"], scene["observing.line_low"],
+            scene["observing.line_high"], g_spread=spread)
+        tables["line"] = line
+        intensity = image
+        pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
+        products["line_intensity"] = image
+        info.update(line_info)
+    if obs.mode in ("bolometric", "true_colour", "spectrum") and law.name == "novikov_thorne":
+        info["units"] = "intensity: bolometric, erg s^-1 cm^-2 sr^-1"
+    return Shaded(intensity=intensity, pixels=pixels, products=products, tables=tables, info=info)
+
+
+def _add_flux(scene, intensity, products, info):
+    from .thermal import cgs
+
+    omega = pixel_angle_rad(scene) ** 2
+    flux = intensity * omega / cgs()["Jy"]
+    products["flux_density_jy"] = flux
+    unit = scene["observing.angle_unit"]
+    scale = pixel_angle_rad(scene) * 180.0 / np.pi * 3600.0 * (1e6 if unit == "uas" else 1e3)
+    info.update({"pixel_solid_angle_sr": omega, "total_flux_jy": float(np.sum(flux)),
+                 "pixel_scale": scale, "pixel_scale_unit": unit})
+
+
+def colour_xyz(law, r, g, weight):
+    """XYZ (N, 3) of the observed colour-corrected blackbody light, summed over orders."""
+    from .cie import blackbody_xyz_sum
+
+    t_obs = g * law.colour_temperature(r)
+    dilution = law.colour_correction ** -4
+    return blackbody_xyz_sum(t_obs, np.broadcast_to(weight, t_obs.shape) * dilution)
+
+
+def _true_colour(obs, scene, r, g, weight, hits):
+    xyz = colour_xyz(obs.law, r, np.where(hits, g, np.nan), weight)
+    if scene["observing.colour_exposure"] == "fixed":
+        reference = float(scene["observing.colour_reference"])
+    else:
+        reference = automatic_reference_luminance(xyz[:, 1])
+    rgb = desaturate_into_gamut(xyz_to_linear_srgb(xyz))
+    encoded = srgb_encode(expose_linear_srgb(rgb, reference, scene["output.exposure"]))
+    products = {
+        "xyz": xyz.astype(np.float32),
+        "rgb_linear": rgb.astype(np.float32),
+        "pixels16": to_uint16(encoded),
+    }
+    info = {"colour_reference_y": reference, "colour_exposure": scene["observing.colour_exposure"],
+            "white_point": "D65 (x, y) = (0.3127, 0.3290), no chromatic adaptation",
+            "gamut": "negative linear sRGB desaturated toward grey of equal Y; channels > 1 "
+                     "scaled down per pixel keeping hue",
+            "units": "xyz and rgb_linear: CIE-weighted radiance, erg s^-1 cm^-2 sr^-1"}
+    return to_uint8(encoded), products, info
+
+
+def disk_spectrum(obs, scene, r, g, weight, hits):
+    """F_nu (Jy) of the whole disk, ray-traced and in flat space; see the module doc."""
+    from .spectra import flat_space_spectrum, image_spectrum
+
+    nu = np.geomspace(scene["observing.spectrum_low"], scene["observing.spectrum_high"],
+                      scene["observing.spectrum_points"])
+    relativistic = image_spectrum(obs.law, nu, r, g, weight, hits, pixel_angle_rad(scene) ** 2)
+    flat = flat_space_spectrum(obs.law, nu, scene.inner_radius, scene["disk.outer_radius"],
+                               scene["observer.inclination"], scene["black_hole.mass"],
+                               scene["black_hole.distance"], obs.limb)
+    return {"frequency_hz": nu, "flux_relativistic_jy": relativistic, "flux_flat_jy": flat}

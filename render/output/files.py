@@ -1,0 +1,174 @@
+"""Writing results: atomic files, PNG images, NPZ data maps.
+
+Every file is first written to a temporary name in the destination folder and
+then renamed into place (``os.replace``, atomic on POSIX), so an interrupted
+run never leaves a truncated file under the final name.  Existing files are
+never overwritten unless the caller passes ``overwrite=True``.
+"""
+
+import json
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import OutputExists, OutputWriteError
+
+__all__ = ["OutputExists", "atomic_write", "write_png", "write_npz", "check_free"]
+
+
+def check_free(paths, overwrite=False):
+    """Raise :class:`OutputExists` if any path exists and ``overwrite`` is false."""
+    if overwrite:
+        return
+    for path in paths:
+        if Path(path).exists():
+            raise OutputExists(f"{path} exists; pass --overwrite to replace it, or choose "
+                               f"another name with --set name=...")
+
+
+def atomic_write(path, write, overwrite=False):
+    """Call ``write(file_object)`` on a temporary file, then rename it to ``path``."""
+    path = Path(path)
+    check_free([path], overwrite)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    try:
+        # mkstemp creates the file 0600; give it the mode a plain open() would.
+        umask = os.umask(0)
+        os.umask(umask)
+        with os.fdopen(fd, "wb") as handle:
+            os.fchmod(handle.fileno(), 0o666 & ~umask)
+            write(handle)
+            handle.flush()
+            os.fsync(handle.fileno())
+        if overwrite:
+            os.replace(tmp, path)
+        else:
+            _publish_new(tmp, path)
+    except BaseException as exc:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        if isinstance(exc, OSError) and not isinstance(exc, (OutputExists, OutputWriteError)):
+            # A full disk, a lost mount, no permission: one line for the user, no traceback.
+            raise OutputWriteError(f"writing {path} failed: {exc.strerror or exc}") from exc
+        raise
+    return path
+
+
+def _publish_new(tmp, path):
+    """Give ``tmp`` the name ``path`` only if no file has that name, without a race window."""
+    try:
+        # link() refuses an existing name atomically, where exists() + replace() would
+        # leave a gap in which another process's file could be replaced.
+        os.link(tmp, path)
+    except FileExistsError:
+        raise OutputExists(f"{path} appeared while writing; not replaced") from None
+    except OSError:
+        # No hard links on this file system (some FAT or network mounts): check, then rename.
+        if path.exists():
+            raise OutputExists(f"{path} appeared while writing; not replaced") from None
+        os.replace(tmp, path)
+        return
+    os.unlink(tmp)
+
+
+def write_png(path, pixels, overwrite=False, metadata=None):
+    """Write an 8-bit grey (H, W) or RGB (H, W, 3) array as PNG, atomically."""
+    from PIL import Image, PngImagePlugin
+
+    info = PngImagePlugin.PngInfo()
+    for key, value in (metadata or {}).items():
+        info.add_text(str(key), str(value))
+    image = Image.fromarray(np.ascontiguousarray(pixels))
+    return atomic_write(path, lambda f: image.save(f, format="PNG", pnginfo=info), overwrite)
+
+
+def write_npz(path, arrays, metadata, overwrite=False):
+    """Write arrays plus a JSON ``metadata`` string entry to a compressed NPZ, atomically.
+
+    Arrays that are memory maps of ``.npy`` files (the maps of a still rendered
+    in tiles, :mod:`render.imaging.tiling`) are copied into the archive from their files
+    in chunks by plain reads, so the write never holds them in memory.
+    """
+    payload = dict(arrays)
+    payload["metadata"] = np.array(json.dumps(metadata, sort_keys=True, default=jsonable))
+    if not any(_npy_file(a) for a in payload.values()):
+        return atomic_write(path, lambda f: np.savez_compressed(f, **payload), overwrite)
+    return atomic_write(path, lambda f: _stream_npz(f, payload), overwrite)
+
+
+STREAM_CHUNK_BYTES = 16 * 1024 * 1024
+
+
+def _npy_file(array):
+    """The .npy file behind a memory map of a whole ``.npy`` file (not a view of one), or None."""
+    import mmap
+
+    name = getattr(array, "filename", None)
+    # Only the map np.load made has the mmap itself as its base; a slice's base is the map.
+    if (isinstance(array, np.memmap) and isinstance(array.base, mmap.mmap) and name
+            and str(name).endswith(".npy")):
+        return name
+    return None
+
+
+def _stream_npz(handle, payload):
+    """The NPZ layout of ``np.savez_compressed`` (one ``name.npy`` member per array)."""
+    import shutil
+    import zipfile
+
+    with zipfile.ZipFile(handle, "w", compression=zipfile.ZIP_DEFLATED, allowZip64=True) as zf:
+        for name, array in payload.items():
+            with zf.open(f"{name}.npy", "w", force_zip64=True) as member:
+                source = _npy_file(array)
+                if source is None:
+                    np.lib.format.write_array(member, np.asanyarray(array), allow_pickle=False)
+                else:
+                    with open(source, "rb") as npy:
+                        shutil.copyfileobj(npy, member, STREAM_CHUNK_BYTES)
+
+
+def jsonable(value):
+    """``json.dumps`` default for numpy scalars and arrays."""
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    raise TypeError(f"not JSON serialisable: {type(value).__name__}")
+
+
+def still_paths(scene_document, folder):
+    """Final paths of a still's files: {kind: Path} for the kinds the scene asks for."""
+    scene = scene_document
+    folder = Path(folder)
+    paths = {}
+    if scene["output"]["png"]:
+        paths["png"] = folder / f"{scene['name']}.png"
+    if scene["output"]["npz"]:
+        paths["npz"] = folder / f"{scene['name']}.npz"
+    return paths
+
+
+def write_still(result, folder="outputs", overwrite=False):
+    """Write a :class:`~render.imaging.result.StillResult` as PNG and NPZ into ``folder``.
+
+    Nothing is written if any target exists and ``overwrite`` is false.
+
+    Returns
+    -------
+    dict
+        {kind: Path} of the files written.
+    """
+    paths = still_paths(result.metadata["scene"], folder)
+    check_free(paths.values(), overwrite)
+    if "png" in paths:
+        write_png(paths["png"], result.pixels, overwrite,
+                  metadata={"Software": f"nullray {result.metadata['version']}",
+                            "nullray-scene": json.dumps(result.metadata["scene"], sort_keys=True)})
+    if "npz" in paths:
+        write_npz(paths["npz"], result.maps(), result.metadata, overwrite)
+    return paths

@@ -1,0 +1,378 @@
+"""Writers of the physical products of a still: FITS maps, 16-bit PNG, linear float, CSV + plots.
+
+Which files a still gets, besides the PNG and NPZ of :mod:`render.output.files`:
+
+* ``<name>.fits`` (``output.fits: true``): the physical maps as FITS images,
+  written with astropy.io.fits (FITS Standard 4.0);
+* true_colour: ``<name>_16bit.png`` (16-bit sRGB) and ``<name>_linear.npy``
+  (float32 linear sRGB, scene-referred, before exposure, (H, W, 3), row 0 at the top);
+* spectrum: ``<name>_spectrum.csv`` and ``<name>_spectrum.png``;
+* line: ``<name>_line.csv`` and ``<name>_line.png``.
+
+All files are written atomically and never replace an existing file unless
+asked (:func:`render.output.files.atomic_write`).
+
+Bounded memory
+--------------
+The FITS maps and the 16-bit PNG are written in blocks of rows: of at most one
+tile's rows for a still rendered in tiles (``metadata["tiles"]["rows_per_tile"]``,
+:mod:`render.imaging.tiling`), and at most ``STREAM_CHUNK_BYTES`` per block in any case.
+A map of a tiled still is a memory map of a temporary ``.npy`` file; its blocks
+are read from the file by plain reads, so the pages of the whole map are never
+resident at once.  The linear ``.npy`` of a tiled still is copied from its
+temporary file in chunks.  Memory while writing therefore grows with the tile,
+not with the image, and stays within ``tracing.memory_budget`` whatever
+products are asked for.
+
+FITS layout
+-----------
+The primary HDU holds the mode's main map (monochromatic: I_nu; bolometric
+and true colour: bolometric intensity; line: line intensity); image
+extensions hold the others (``FLUXPIX``, Jy per pixel; ``REDSHIFT``, g of the
+first crossing).  FITS rows run upwards, so the arrays are flipped
+vertically.  The sky axes are ``RA---TAN`` / ``DEC--TAN`` with CRVAL = 0,
+CRPIX at the image centre and CDELT1 = -pixel scale (east to the left, the
+FITS habit), CDELT2 = +pixel scale, in degrees; +x of the image is the
+Bardeen alpha axis.  Header cards: BUNIT, OBSFREQ (Hz), BHMASS (M_sun),
+DISTPC (pc), BHSPIN, INCLIN (deg), plus the mode and emission law.
+"""
+
+import csv
+import io
+import struct
+import zlib
+from pathlib import Path
+
+import numpy as np
+
+from .files import STREAM_CHUNK_BYTES, _npy_file, atomic_write, check_free
+
+__all__ = ["product_paths", "write_products", "write_fits", "write_png16", "write_npy",
+           "write_table_csv", "fits_hdus", "read_rows"]
+
+
+def product_paths(scene_document, folder):
+    """Final paths of the extra files of a still: {kind: Path}."""
+    folder = Path(folder)
+    name = scene_document["name"]
+    mode = scene_document["observing"]["mode"]
+    paths = {}
+    if scene_document["output"].get("fits"):
+        paths["fits"] = folder / f"{name}.fits"
+    if mode == "true_colour":
+        paths["png16"] = folder / f"{name}_16bit.png"
+        paths["linear"] = folder / f"{name}_linear.npy"
+    if mode == "spectrum":
+        paths["spectrum_csv"] = folder / f"{name}_spectrum.csv"
+        paths["spectrum_png"] = folder / f"{name}_spectrum.png"
+    if mode == "line":
+        paths["line_csv"] = folder / f"{name}_line.csv"
+        paths["line_png"] = folder / f"{name}_line.png"
+    return paths
+
+
+def write_products(result, folder="outputs", overwrite=False):
+    """Write the extra files of a :class:`~render.imaging.result.StillResult`; returns {kind: Path}."""
+    paths = product_paths(result.metadata["scene"], folder)
+    check_free(paths.values(), overwrite)
+    if "fits" in paths:
+        write_fits(paths["fits"], result, overwrite)
+    if "png16" in paths:
+        pixels16 = result.products["pixels16"]
+        write_png16(paths["png16"], pixels16, overwrite,
+                    block_rows=_block_rows(result, pixels16[:1].nbytes))
+        linear = result.products["rgb_linear"]
+        write_npy(paths["linear"], linear, overwrite,
+                  chunk_bytes=_block_rows(result, linear[:1].nbytes) * linear[:1].nbytes)
+    if "spectrum_csv" in paths:
+        table = result.tables["spectrum"]
+        write_table_csv(paths["spectrum_csv"], table, overwrite,
+                        header="# disk-integrated F_nu in Jy; relativistic: ray-traced image; "
+                               "flat: same local emission without relativistic effects")
+        _plot(paths["spectrum_png"], overwrite, _spectrum_figure, table, result.metadata)
+    if "line_csv" in paths:
+        table = result.tables["line"]
+        write_table_csv(paths["line_csv"], table, overwrite,
+                        header="# line profile: counts = photon counts per bin normalised to "
+                               "sum 1; energy_flux in the image's units")
+        _plot(paths["line_png"], overwrite, _line_figure, table, result.metadata)
+    return paths
+
+
+def write_table_csv(path, table, overwrite=False, header=None):
+    """Write a dict of equal-length 1-D arrays as CSV (header comment line, then names)."""
+    names = list(table)
+    text = io.StringIO()
+    if header:
+        text.write(header + "\n")
+    writer = csv.writer(text, lineterminator="\n")
+    writer.writerow(names)
+    for row in zip(*(np.asarray(table[n]) for n in names)):
+        writer.writerow([f"{float(v):.10g}" for v in row])
+    data = text.getvalue().encode("utf-8")
+    return atomic_write(path, lambda f: f.write(data), overwrite)
+
+
+def _block_rows(result, row_bytes):
+    """Rows per write block: at most a tile's rows, and at most STREAM_CHUNK_BYTES."""
+    height = result.fate.shape[0]
+    tile_rows = result.metadata.get("tiles", {}).get("rows_per_tile", height)
+    return max(1, min(int(tile_rows), height, STREAM_CHUNK_BYTES // max(int(row_bytes), 1)))
+
+
+def read_rows(array, start, stop, index=None):
+    """Rows ``start:stop`` of ``array`` (of ``array[index]`` if given) as an in-memory array.
+
+    For a memory map of a whole ``.npy`` file (a map of a still rendered in
+    tiles) the rows are read from the file by a plain read, so that only they,
+    not the pages of the whole map, become resident.
+    """
+    source = _npy_file(array)
+    if source is None:
+        part = array if index is None else array[index]
+        return np.asarray(part[start:stop])
+    shape = array.shape if index is None else array.shape[1:]
+    items = int(np.prod(shape[1:], dtype=np.int64))
+    first = start if index is None else index * shape[0] + start
+    block = np.fromfile(source, dtype=array.dtype, count=(stop - start) * items,
+                        offset=array.offset + first * items * array.dtype.itemsize)
+    return block.reshape((stop - start,) + tuple(shape[1:]))
+
+
+def write_npy(path, array, overwrite=False, chunk_bytes=STREAM_CHUNK_BYTES):
+    """Write ``array`` as ``.npy`` atomically, the bytes ``np.save`` would write.
+
+    A memory map of a tile file gets a fresh header, then its data is copied
+    from the file by plain reads of ``chunk_bytes``, so it is never loaded whole.
+    """
+    source = _npy_file(array)
+    if source is None:
+        return atomic_write(path, lambda f: np.save(f, np.ascontiguousarray(array)), overwrite)
+
+    def copy(handle):
+        header = np.lib.format.header_data_from_array_1_0(array)
+        try:
+            np.lib.format.write_array_header_1_0(handle, header)
+        except ValueError:  # np.save's rule: version 2.0 only when 1.0 cannot hold it
+            np.lib.format.write_array_header_2_0(handle, header)
+        remaining = array.nbytes
+        with open(source, "rb") as npy:
+            npy.seek(array.offset)
+            while remaining > 0:
+                piece = npy.read(min(int(chunk_bytes), remaining))
+                if not piece:
+                    raise OSError(f"{source} is shorter than its header says")
+                handle.write(piece)
+                remaining -= len(piece)
+
+    return atomic_write(path, copy, overwrite)
+
+
+# IDAT chunks of about this size (PNG allows the zlib stream to be split across
+# consecutive IDAT chunks, ISO/IEC 15948 sec. 10.1).
+IDAT_BYTES = 1 << 20
+
+
+def write_png16(path, rgb16, overwrite=False, block_rows=None):
+    """Write an (H, W, 3) uint16 array as a 16-bit RGB PNG (colour type 2, bit depth 16).
+
+    The rows are filtered (type 0) and compressed ``block_rows`` at a time (default:
+    blocks of at most 16 MB), so memory does not grow with the image.
+
+    References
+    ----------
+    ISO/IEC 15948:2004 (PNG), sec. 10.1 (IDAT), 11.2.2 (IHDR) and 11.3.4.5 (sRGB chunk).
+    """
+    height, width, _ = rgb16.shape
+    row_bytes = 6 * width
+    rows = block_rows or max(1, STREAM_CHUNK_BYTES // max(row_bytes, 1))
+
+    def chunk(kind, payload):
+        body = kind + payload
+        return struct.pack(">I", len(payload)) + body + struct.pack(">I", zlib.crc32(body))
+
+    def write(handle):
+        handle.write(b"\x89PNG\r\n\x1a\n"
+                     + chunk(b"IHDR", struct.pack(">IIBBBBB", width, height, 16, 2, 0, 0, 0))
+                     + chunk(b"sRGB", b"\x00"))
+        compressor = zlib.compressobj(6)
+        pending = []
+        size = 0
+        for start in range(0, height, rows):
+            stop = min(start + rows, height)
+            samples = np.ascontiguousarray(read_rows(rgb16, start, stop), dtype=">u2")
+            filtered = np.zeros((stop - start, 1 + row_bytes), dtype=np.uint8)
+            filtered[:, 1:] = samples.view(np.uint8).reshape(stop - start, row_bytes)
+            del samples
+            piece = compressor.compress(filtered)
+            del filtered
+            if piece:
+                pending.append(piece)
+                size += len(piece)
+            if size >= IDAT_BYTES:
+                handle.write(chunk(b"IDAT", b"".join(pending)))
+                pending, size = [], 0
+        pending.append(compressor.flush())
+        handle.write(chunk(b"IDAT", b"".join(pending)) + chunk(b"IEND", b""))
+
+    return atomic_write(path, write, overwrite)
+
+
+def _main_map(result):
+    mode = result.metadata["scene"]["observing"]["mode"]
+    law = result.metadata["scene"]["emission"]["law"]
+    if mode == "monochromatic":
+        return result.products["specific_intensity"], "erg/(s cm2 Hz sr)"
+    if mode == "line":
+        return result.products["line_intensity"], "arbitrary (line intensity)"
+    unit = "erg/(s cm2 sr)" if law == "novikov_thorne" else "arbitrary"
+    return result.intensity, unit
+
+
+def _fits_layout(result):
+    """[(header, array, index)] of a still's FITS HDUs; the data is ``array[index]``, unflipped.
+
+    The headers are complete (mandatory cards for (H, W) float64 data, EXTEND in
+    the primary one) but no data array of the image's size is made.
+    """
+    from astropy.io import fits
+
+    from ..light.observing import pixel_angle_rad
+    from ..scene.loader import scene_from_dict
+
+    meta = result.metadata
+    doc = meta["scene"]
+    scene = scene_from_dict(doc, source=meta.get("scene_source", "<dict>"), default_name=doc["name"])
+    pixel_deg = float(np.degrees(pixel_angle_rad(scene)))
+    data, unit = _main_map(result)
+    height, width = data.shape
+
+    def header(bunit, extname=None):
+        h = fits.Header()
+        h["BUNIT"] = (bunit, "unit of the pixel values")
+        h["CTYPE1"], h["CTYPE2"] = ("RA---TAN", "sky offset, +x = Bardeen alpha"), "DEC--TAN"
+        h["CUNIT1"], h["CUNIT2"] = "deg", "deg"
+        h["CRPIX1"] = ((width + 1) / 2.0, "reference pixel: image centre")
+        h["CRPIX2"] = (height + 1) / 2.0
+        h["CRVAL1"], h["CRVAL2"] = 0.0, 0.0
+        h["CDELT1"] = (-pixel_deg, "deg per pixel")
+        h["CDELT2"] = (pixel_deg, "deg per pixel")
+        frequency = meta.get("observing", {}).get("frequency_hz")
+        if frequency is not None:
+            h["OBSFREQ"] = (float(frequency), "observed frequency [Hz]")
+        h["BHMASS"] = (float(doc["black_hole"]["mass"]), "black-hole mass [M_sun]")
+        h["DISTPC"] = (float(doc["black_hole"]["distance"]), "distance [pc]")
+        h["BHSPIN"] = (float(doc["black_hole"]["spin"]), "dimensionless spin a/M")
+        h["INCLIN"] = (float(doc["observer"]["inclination"]), "inclination [deg]")
+        h["OBSMODE"] = (doc["observing"]["mode"], "observing mode")
+        h["EMLAW"] = (doc["emission"]["law"], "emission law")
+        h["ORIGIN"] = f"nullray {meta['version']}"
+        if extname:
+            h["EXTNAME"] = extname
+        return h
+
+    layout = [(header(unit), data, None)]
+    if "flux_density_jy" in result.products:
+        layout.append((header("Jy/pixel", "FLUXPIX"), result.products["flux_density_jy"], None))
+    layout.append((header("", "REDSHIFT"), result.g, 0))
+    # A zero-strided stand-in gives astropy the data shape and type for the mandatory
+    # cards (BITPIX, NAXISn, PCOUNT, GCOUNT, EXTEND) without an image-sized array.
+    stand_in = np.broadcast_to(np.float64(0.0), (height, width))
+    hdus = fits.HDUList([fits.PrimaryHDU(stand_in, header=layout[0][0])]
+                        + [fits.ImageHDU(stand_in, header=h) for h, _, _ in layout[1:]])
+    hdus.update_extend()
+    return [(hdu.header, array, index) for hdu, (_, array, index) in zip(hdus, layout)]
+
+
+def fits_hdus(result):
+    """astropy HDUList of a still's physical maps (see the module doc), held in memory."""
+    from astropy.io import fits
+
+    hdus = []
+    for k, (header, array, index) in enumerate(_fits_layout(result)):
+        data = np.asarray(array if index is None else array[index], dtype=np.float64)
+        kind = fits.PrimaryHDU if k == 0 else fits.ImageHDU
+        hdus.append(kind(np.ascontiguousarray(np.flipud(data)), header=header))
+    return fits.HDUList(hdus)
+
+
+FITS_BLOCK = 2880  # FITS Standard 4.0, sec. 3.1: headers and data fill 2880-byte blocks
+
+
+def write_fits(path, result, overwrite=False):
+    """Write the FITS file of a still atomically, each map in blocks of rows.
+
+    Each HDU is its astropy header (padded to 2880 bytes with its END card) and
+    then the map as big-endian IEEE float64, rows flipped so that FITS row 1 is
+    the bottom of the image, zero-padded to a multiple of 2880 bytes -- the
+    bytes astropy's own writer produces for the same data (tests/test_memory.py),
+    without holding a whole map in memory.
+
+    References
+    ----------
+    FITS Standard 4.0 (IAU FITS Working Group 2016), sec. 3.3.2, 4.4.1 and 5.3.
+    """
+    layout = _fits_layout(result)
+    height, width = result.fate.shape
+    rows = _block_rows(result, 8 * width)
+
+    def write(handle):
+        for header, array, index in layout:
+            handle.write(header.tostring().encode("ascii"))
+            for stop in range(height, 0, -rows):
+                start = max(0, stop - rows)
+                block = read_rows(array, start, stop, index)[::-1]
+                handle.write(np.ascontiguousarray(block, dtype=">f8"))
+                del block
+            handle.write(b"\0" * (-(8 * width * height) % FITS_BLOCK))
+
+    return atomic_write(path, write, overwrite)
+
+
+def _plot(path, overwrite, figure_maker, table, metadata):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig = figure_maker(plt, table, metadata)
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=110)
+    plt.close(fig)
+    data = buffer.getvalue()
+    return atomic_write(path, lambda f: f.write(data), overwrite)
+
+
+def _title(metadata):
+    doc = metadata["scene"]
+    return (f"{doc['name']}: a = {doc['black_hole']['spin']:g}, i = "
+            f"{doc['observer']['inclination']:g} deg, M = {doc['black_hole']['mass']:.3g} M_sun, "
+            f"D = {doc['black_hole']['distance']:.3g} pc")
+
+
+def _spectrum_figure(plt, table, metadata):
+    fig, ax = plt.subplots(figsize=(6.4, 4.4))
+    nu = table["frequency_hz"]
+    for key, label in (("flux_relativistic_jy", "ray-traced (relativistic)"),
+                       ("flux_flat_jy", "flat space (no relativistic effects)")):
+        values = np.where(table[key] > 0, nu * table[key], np.nan)
+        ax.loglog(nu, values, label=label)
+    ax.set_xlabel("frequency nu [Hz]")
+    ax.set_ylabel("nu F_nu [Hz Jy]")
+    ax.set_title(_title(metadata), fontsize=8)
+    ax.legend(fontsize=8)
+    fig.tight_layout()
+    return fig
+
+
+def _line_figure(plt, table, metadata):
+    fig, ax = plt.subplots(figsize=(6.4, 4.4))
+    ax.step(table["energy_kev"], table["counts"], where="mid")
+    rest = metadata["observing"]["line_energy_kev"]
+    ax.axvline(rest, color="grey", linestyle=":", label=f"rest energy {rest:g} keV")
+    ax.set_xlabel("observed photon energy [keV]")
+    ax.set_ylabel("counts per bin (normalised)")
+    ax.set_title(_title(metadata), fontsize=8)
+    ax.legend(fontsize=8)
+    fig.tight_layout()
+    return fig

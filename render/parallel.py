@@ -1,0 +1,287 @@
+"""Spreading frames over processes: a local pool or a Dask distributed cluster.
+
+The unit of work is one frame (:class:`render.film.sequence.FrameJob`), or one band
+of rows of a large still (:func:`render_still_on_cluster`).  Workers return the
+frame's pixels or the band's arrays; the client writes them, in order, so the
+files look the same whichever backend rendered them.
+
+Numba's parallel kernel would start one thread per core in every worker; with
+several workers per machine that oversubscribes the cores.  Each task therefore
+sets ``numba.set_num_threads(cores // workers_on_that_machine)`` before
+tracing (numba's thread count is per calling thread, so it is set inside the
+task, not once per process).
+
+Cluster set-up (see README)::
+
+    dask scheduler --host 0.0.0.0 --port 8786            # on one machine
+    dask worker tcp://SCHEDULER:8786 --nworkers 1 --nthreads 1   # on each machine
+    nullray sequence scenes/orbit.yaml --scheduler tcp://SCHEDULER:8786
+
+Every worker needs the same nullray installed (``pip install -e .``).
+"""
+
+import os
+from collections import Counter
+
+from .errors import SchedulerError, WorkerLostError
+
+__all__ = ["SchedulerError", "auto_workers", "connect", "check_scheduler", "frame_results", "local_threads",
+           "render_still_on_cluster"]
+
+CONNECT_TIMEOUT_S = 10
+
+
+def local_threads(workers, cores=None):
+    """Numba threads per worker so that ``workers`` processes share the cores.
+
+    Examples
+    --------
+    >>> local_threads(2, cores=8), local_threads(16, cores=8)
+    (4, 1)
+    """
+    cores = cores or os.cpu_count() or 1
+    return max(1, cores // max(1, int(workers)))
+
+
+def connect(address, timeout=CONNECT_TIMEOUT_S):
+    """A ``dask.distributed.Client`` for ``address``; :class:`SchedulerError` if unreachable."""
+    try:
+        from dask.distributed import Client
+    except ImportError as exc:  # pragma: no cover - dask is a dependency
+        raise SchedulerError(f"--scheduler needs dask.distributed: {exc}") from None
+    _check_reachable(address, timeout)
+    try:
+        client = Client(address, timeout=timeout, set_as_default=False)
+    except Exception as exc:  # OSError, TimeoutError, ValueError for a malformed address
+        detail = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise SchedulerError(f"--scheduler {address!r} cannot be reached: {detail}") from None
+    return client
+
+
+def check_scheduler(address, timeout=CONNECT_TIMEOUT_S):
+    """Raise :class:`SchedulerError` now if ``address`` refuses connections (no Dask needed)."""
+    _check_reachable(address, timeout)
+
+
+def _check_reachable(address, timeout):
+    """Fail fast on a refused or unroutable tcp:// address (Dask itself retries until timeout)."""
+    import socket
+    from urllib.parse import urlsplit
+
+    if "://" not in address:
+        address = f"tcp://{address}"
+    parts = urlsplit(address)
+    if parts.scheme not in ("tcp", "tls"):
+        return  # other transports (inproc, ucx): leave the check to Dask
+    try:
+        host, port = parts.hostname, parts.port
+    except ValueError:
+        raise SchedulerError(f"--scheduler {address!r} is not an address host:port") from None
+    if not host or port is None:
+        raise SchedulerError(f"--scheduler {address!r} is not an address host:port (e.g. "
+                             "tcp://10.0.0.5:8786)")
+    try:
+        socket.create_connection((host, port), timeout=timeout).close()
+    except OSError as exc:
+        raise SchedulerError(f"--scheduler {address!r} cannot be reached: "
+                             f"{exc.strerror or exc}") from None
+
+
+def _dask_threads(client):
+    """{worker address: numba threads}: each machine's cores shared by its worker threads."""
+    cores = client.run(os.cpu_count)
+    workers = client.scheduler_info(n_workers=-1)["workers"] if _accepts_n_workers(client) \
+        else client.scheduler_info()["workers"]
+    per_host = Counter()
+    for address, info in workers.items():
+        per_host[info.get("host", address)] += int(info.get("nthreads", 1))
+    return {address: max(1, (cores.get(address) or 1) // per_host[info.get("host", address)])
+            for address, info in workers.items()}
+
+
+def _accepts_n_workers(client):
+    import inspect
+
+    return "n_workers" in inspect.signature(client.scheduler_info).parameters
+
+
+def _dask_task(job, threads):
+    from dask.distributed import get_worker
+
+    from .film.sequence import render_frame
+
+    return render_frame(job, numba_threads=threads.get(get_worker().address, 1))
+
+
+def _pool_init(parent):
+    # Workers never print tracebacks of Ctrl-C: the client reports the interruption.
+    import signal
+    import threading
+    import time
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+    def exit_when_orphaned():
+        # A client killed with SIGKILL cannot shut its pool down; its workers would wait
+        # for work forever.  They leave once their parent is gone.
+        while os.getppid() == parent:
+            time.sleep(0.5)
+        os._exit(1)
+
+    threading.Thread(target=exit_when_orphaned, daemon=True).start()
+
+
+def _caused_by_interrupt(exc):
+    seen = 0
+    while exc is not None and seen < 1000:
+        if isinstance(exc, KeyboardInterrupt):
+            return True
+        exc, seen = exc.__cause__ or exc.__context__, seen + 1
+    return False
+
+
+def frame_results(jobs, workers=1, client=None):
+    """Yield :class:`~render.film.sequence.FrameResult` for ``jobs``, in their order.
+
+    Parameters
+    ----------
+    jobs : list of FrameJob
+    workers : int
+        Local processes; 1 renders in this process.
+    client : dask.distributed.Client, optional
+        Send the frames to this cluster instead.
+    """
+    from .film.sequence import render_frame
+
+    jobs = list(jobs)
+    if not jobs:
+        return
+    if client is not None:
+        threads = _dask_threads(client)
+        futures = [client.submit(_dask_task, job, threads, pure=False,
+                                 key=f"nullray-frame-{job.index}-{id(jobs)}") for job in jobs]
+        yield from _results_in_order(futures)
+        return
+    if workers <= 1:
+        for job in jobs:
+            try:
+                result = render_frame(job)
+            except SystemError as exc:
+                # Ctrl-C inside the numba kernel surfaces as "returned a result with an
+                # exception set", caused by the KeyboardInterrupt: report it as one.
+                if _caused_by_interrupt(exc):
+                    raise KeyboardInterrupt from None
+                raise
+            yield result
+        return
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    # spawn: numba's threading layers are not safe across fork.
+    context = multiprocessing.get_context("spawn")
+    threads = local_threads(workers)
+    with ProcessPoolExecutor(max_workers=int(workers), mp_context=context,
+                             initializer=_pool_init, initargs=(os.getpid(),)) as pool:
+        futures = [pool.submit(render_frame, job, threads) for job in jobs]
+        yield from _results_in_order(futures)
+
+
+def _results_in_order(futures):
+    """Yield the futures' results in submission order; cancel the rest if stopped early.
+
+    A worker that dies (killed, out of memory) becomes one :class:`WorkerLostError`;
+    the frames already yielded are kept by the caller, so a rerun resumes.
+    """
+    from concurrent.futures.process import BrokenProcessPool
+
+    try:
+        for number, future in enumerate(futures):
+            try:
+                yield future.result()
+            except BrokenProcessPool:
+                raise WorkerLostError(
+                    f"a worker process died (killed, or out of memory) after {number} "
+                    "results; what finished is kept, rerun to resume") from None
+            except Exception as exc:
+                if type(exc).__name__ == "KilledWorker":   # dask.distributed's lost worker
+                    raise WorkerLostError(f"a cluster worker died while rendering: {exc}; "
+                                          "what finished is kept, rerun to resume") from None
+                raise
+    finally:
+        for future in futures:
+            future.cancel()
+
+
+def _still_band_task(scene, rows, threads):
+    from dask.distributed import get_worker
+    import numba
+
+    from .light.observing import prepare_observation
+    from .imaging.still import _render_band
+
+    count = threads.get(get_worker().address, 1)
+    numba.set_num_threads(max(1, min(int(count), numba.config.NUMBA_NUM_THREADS)))
+    return _render_band(scene, prepare_observation(scene), rows, None,
+                        bool(scene["output.npz"]))
+
+
+def render_still_on_cluster(scene, address, *, workdir=None, progress=None, bands_per_worker=4):
+    """Render one still as bands of rows on a Dask cluster; return a StillResult.
+
+    The bands are submitted at once and collected in order by the client, which
+    assembles them as :func:`render.imaging.tiling.render_in_tiles` does for a still
+    larger than its memory budget (temporary files in ``workdir``; call
+    ``result.release()`` when written), so the result is the same as the
+    local render's.  Observing modes that shade the whole image at once
+    cannot be split and are refused.
+    """
+    import dataclasses
+
+    from .light.observing import prepare_observation
+    from .errors import SceneError
+    from .imaging.tiling import is_tileable, plan_still, render_in_tiles
+
+    prepare_observation(scene)
+    base = plan_still(scene)
+    if not is_tileable(scene.values):
+        raise SceneError(f"observing.mode = {scene['observing.mode']!r} shades the whole image "
+                         "at once and cannot be split into bands for --scheduler; render it "
+                         "without --scheduler")
+    client = connect(address)
+    futures = {}
+    try:
+        threads = _dask_threads(client)
+        wanted = max(1, bands_per_worker * max(1, len(threads)))
+        rows = max(1, min(base.rows_per_tile, -(-base.height // wanted)))
+        plan = dataclasses.replace(base, rows_per_tile=rows,
+                                   tile_bytes=base.whole_bytes * rows / base.height)
+        futures = {band: client.submit(_still_band_task, scene, band, threads, pure=False)
+                   for band in plan.bands()}
+
+        def render_band(band, band_progress):
+            part = futures.pop(band).result()
+            band_progress((band[1] - band[0]) * plan.width, None)
+            return part
+
+        return render_in_tiles(scene, plan, render_band, workdir=workdir, progress=progress)
+    finally:
+        for future in futures.values():
+            future.cancel()
+        client.close()
+
+
+# With fewer frames left than this, a local pool's start-up (numba's cache load in every
+# spawned worker, ~1.5 s) outweighs its gain (README, Performance: bench_sequence.py).
+AUTO_POOL_MIN_FRAMES = 8
+
+
+def auto_workers(frames_left, cores=None):
+    """The default worker count: every core for a long enough sequence, else 1.
+
+    Examples
+    --------
+    >>> auto_workers(120, cores=2), auto_workers(3, cores=2), auto_workers(120, cores=1)
+    (2, 1, 1)
+    """
+    cores = cores or os.cpu_count() or 1
+    return cores if frames_left >= AUTO_POOL_MIN_FRAMES else 1
