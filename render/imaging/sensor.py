@@ -48,6 +48,7 @@ from pathlib import Path
 import numpy as np
 
 from ..geodesics.integrator import FATE_ESCAPED
+from ..light.color import SRGB_LUMINANCE
 from .tiling import HALO_ROWS
 
 __all__ = ["FILTERS", "SENSOR_MODES", "check_sensor", "prepare_sky", "needs_sensor",
@@ -296,7 +297,7 @@ def _panorama_radiance(sky, observation, raw, bundle, scene, white, directions):
     if observation.mode == "true_colour":
         value = rgb @ np.linalg.inv(xyz_to_linear_srgb_matrix()).T
     else:
-        value = rgb @ np.array([0.2126, 0.7152, 0.0722])[:, None]   # sRGB luminance weights
+        value = rgb @ np.array(SRGB_LUMINANCE)[:, None]
     value *= scale[:, None]
     value[raw["fate"] != FATE_ESCAPED] = 0.0
     return value

@@ -15,8 +15,13 @@ import math
 import numpy as np
 from numba import njit, prange
 
-__all__ = ["tone_map", "srgb_encode", "to_uint8", "to_uint16", "xyz_to_linear_srgb",
+__all__ = ["SRGB_LUMINANCE", "tone_map", "srgb_encode", "to_uint8", "to_uint16", "xyz_to_linear_srgb",
            "desaturate_into_gamut", "expose_true_colour", "automatic_reference_luminance"]
+
+# Luminance Y of linear sRGB: Y = 0.2126 R + 0.7152 G + 0.0722 B (IEC 61966-2-1, the
+# middle row of its RGB -> XYZ matrix; WCAG 2.2's relative luminance uses the same).
+SRGB_LUMINANCE = (0.2126, 0.7152, 0.0722)
+_Y_R, _Y_G, _Y_B = SRGB_LUMINANCE
 
 
 def tone_map(intensity, white, exposure=1.0):
@@ -113,7 +118,7 @@ def _gamut_kernel(rgb, scale, limit, out):
         b = rgb[i, 2] if math.isfinite(rgb[i, 2]) else 0.0
         low = min(r, g, b)
         if low < 0.0:
-            luminance = max(0.2126 * r + 0.7152 * g + 0.0722 * b, 0.0)
+            luminance = max(_Y_R * r + _Y_G * g + _Y_B * b, 0.0)
             s = luminance / (luminance - low)
             s = min(max(s, 0.0), 1.0) if s == s else 0.0
             r = max(luminance + s * (r - luminance), 0.0)

@@ -27,6 +27,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ..light.color import SRGB_LUMINANCE
+
 __all__ = ["relative_luminance", "flash_check", "write_video", "write_gif",
            "contact_sheet", "write_sequence_products", "FLASH_AREA_FRACTION", "FRAME_PATTERN"]
 
@@ -50,7 +52,7 @@ def relative_luminance(pixels):
     v = np.asarray(pixels, dtype=float) / 255.0
     linear = np.where(v <= 0.04045, v / 12.92, ((v + 0.055) / 1.055) ** 2.4)
     if linear.ndim >= 3 and linear.shape[-1] == 3:
-        return linear @ np.array([0.2126, 0.7152, 0.0722])
+        return linear @ np.array(SRGB_LUMINANCE)
     return linear
 
 
