@@ -173,7 +173,7 @@ def main(argv=None):
     args = _parser().parse_args(argv)
     try:
         if args.command == "keys":
-            from .scene.loader import keys_reference
+            from .scene.keys import keys_reference
 
             print(keys_reference())
             return 0

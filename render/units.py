@@ -5,6 +5,9 @@ Constants come from astropy.constants and astropy.units (imported lazily: they
 cost about a second of start-up, and most renders never need them).
 """
 
+# Units of a reported angular pixel scale: microarcseconds or milliarcseconds.
+ANGLE_UNITS = ("uas", "mas")
+
 __all__ = [
     "gravitational_radius_cm",
     "gravitational_time_s",

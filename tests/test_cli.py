@@ -17,7 +17,8 @@ import pytest
 from PIL import Image
 
 from render.cli import EXIT_BAD_INPUT, main
-from render.scene.loader import KEYS, load_scene, scene_from_dict
+from render.scene.keys import KEYS
+from render.scene.loader import load_scene, scene_from_dict
 
 from conftest import run_cli  # noqa: E402  (shared test helpers)
 

@@ -19,7 +19,8 @@ import yaml
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from render.scene.loader import KEYS, SECTIONS, Scene, load_scene, scene_from_dict
+from render.scene.keys import KEYS, SECTIONS
+from render.scene.loader import Scene, load_scene, scene_from_dict
 from render.errors import SceneError
 
 SHORT = settings(max_examples=40, deadline=None, derandomize=True,

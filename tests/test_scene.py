@@ -14,7 +14,8 @@ import pytest
 import yaml
 
 from render.cli import EXIT_BAD_INPUT
-from render.scene.loader import KEYS, MAX_SCENE_BYTES, default_scene, load_scene, scene_from_dict
+from render.scene.keys import KEYS
+from render.scene.loader import MAX_SCENE_BYTES, default_scene, load_scene, scene_from_dict
 from render.errors import SceneError
 
 from conftest import run_cli  # noqa: E402  (shared test helpers)

@@ -52,6 +52,7 @@ from ..spacetime.kerr import ergosphere_radius, horizon_radii, metric_functions
 
 __all__ = [
     "Viewpoint",
+    "OBSERVER_KINDS",
     "RayBundle",
     "image_plane_grid",
     "distant_observer_rays",
@@ -61,6 +62,8 @@ __all__ = [
     "FRAMES",
 ]
 
+# Observer kinds: the exact observer at infinity, or a camera at a finite radius.
+OBSERVER_KINDS = ("camera", "distant")
 FRAMES = ("zamo", "static")
 # Below this |sin(theta)| an observer counts as sitting on the spin axis, where
 # the Boyer–Lindquist phi direction is undefined and is chosen per ray instead.

@@ -19,6 +19,9 @@ import numpy as np
 
 from ..spacetime.kerr import circular_orbit_time_component, isco_radius, keplerian_angular_velocity
 
+# opaque: a ray ends at its first crossing on the disk; transparent: orders add up.
+SURFACES = ("opaque", "transparent")
+
 __all__ = ["redshift_factor", "on_disk"]
 
 

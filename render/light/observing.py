@@ -42,6 +42,8 @@ __all__ = ["MODES", "Observation", "Shaded", "prepare_observation", "shade",
            "check_observing", "observing_frequency_hz", "pixel_angle_rad"]
 
 MODES = ("bolometric", "monochromatic", "true_colour", "spectrum", "line")
+# Where true colour puts its white: the image's own luminance percentile, or a given value.
+COLOUR_EXPOSURES = ("auto", "fixed")
 THERMAL_MODES = ("monochromatic", "true_colour", "spectrum")
 # Products with one value per order (shape (N, orders)); the others are per pixel.
 PER_ORDER_PRODUCTS = ("emission_cosine",)
