@@ -23,7 +23,7 @@ Every worker needs the same nullray installed (``pip install -e .``).
 import os
 from collections import Counter
 
-from .errors import SchedulerError, WorkerLostError
+from .errors import SchedulerError, UsageError, WorkerLostError
 
 __all__ = ["SchedulerError", "auto_workers", "connect", "check_scheduler", "frame_results", "local_threads",
            "render_still_on_cluster"]
@@ -238,13 +238,12 @@ def render_still_on_cluster(scene, address, *, workdir=None, progress=None, band
     import dataclasses
 
     from .light.observing import prepare_observation
-    from .errors import SceneError
     from .imaging.tiling import is_tileable, plan_still, render_in_tiles
 
     prepare_observation(scene)
     base = plan_still(scene)
     if not is_tileable(scene.values):
-        raise SceneError(f"observing.mode = {scene['observing.mode']!r} shades the whole image "
+        raise UsageError(f"observing.mode = {scene['observing.mode']!r} shades the whole image "
                          "at once and cannot be split into bands for --scheduler; render it "
                          "without --scheduler")
     client = connect(address)
