@@ -387,3 +387,27 @@ def test_tiled_still_without_maps_stores_no_nan_maps(tmp_path):
         assert np.array_equal(whole.pixels, tiled.pixels)
     finally:
         tiled.release()
+
+
+def test_a_full_disk_while_writing_tiles_is_one_output_write_error(tmp_path, monkeypatch):
+    # A full disk (ENOSPC) while a band is written must become the one-line run error
+    # (exit status 1 on the command line), not an OSError traceback.
+    import builtins
+    import errno
+
+    from render.errors import OutputWriteError
+    from render.imaging.tiling import TileStore
+
+    store = TileStore(tmp_path)
+    real_open = builtins.open
+
+    def full_disk_open(path, mode="r", *args, **kwargs):
+        if "+" in mode and str(store.folder) in str(path):
+            raise OSError(errno.ENOSPC, "No space left on device")
+        return real_open(path, mode, *args, **kwargs)
+
+    monkeypatch.setattr(builtins, "open", full_disk_open)
+    with pytest.raises(OutputWriteError, match="No space left on device") as caught:
+        store.write_band("intensity", np.zeros((2, 4)), (0, 2), 4)
+    assert "\n" not in str(caught.value)
+    store.release()

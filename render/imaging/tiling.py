@@ -34,6 +34,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ..errors import OutputWriteError
+
 __all__ = ["TilePlan", "plan_still", "check_memory", "render_in_tiles",
            "TileStore"]
 
@@ -171,7 +173,17 @@ class TileStore:
         self._files[name] = (path, offset, np.dtype(dtype), tuple(shape))
 
     def write_band(self, name, band, rows, full_height):
-        """Write ``band`` (rows start..stop of an (..., H, W[, C]) array) into its file."""
+        """Write ``band`` (rows start..stop of an (..., H, W[, C]) array) into its file.
+
+        A failed write (a full disk) raises :class:`render.errors.OutputWriteError`.
+        """
+        try:
+            self._write_band(name, band, rows, full_height)
+        except OSError as exc:
+            raise OutputWriteError(f"writing the tiles of a large still in {self.folder} "
+                                   f"failed: {exc.strerror or exc}") from exc
+
+    def _write_band(self, name, band, rows, full_height):
         band = np.ascontiguousarray(band)
         start, stop = rows
         per_order = band.ndim == 3 and name in self.per_order
