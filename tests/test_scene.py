@@ -53,7 +53,7 @@ BAD_SCENES = [
     ("list-for-number", "observer:\n  inclination: [30, 40]\n",
      ["observer.inclination", "[30, 40]"]),
     ("bool-for-number", "black_hole:\n  spin: true\n", ["black_hole.spin", "True"]),
-    ("bool-for-int", "image:\n  width: yes\n", ["image.width", "True"]),
+    ("bool-for-int", "image:\n  width: true\n", ["image.width", "True"]),
     ("fraction-for-int", "image:\n  width: 16.5\n", ["image.width", "16.5", "whole number"]),
     ("number-for-bool", "output:\n  png: 1\n", ["output.png", "1", "true or false"]),
     ("bad-choice", "observer:\n  frame: rotating\n", ["observer.frame", "'rotating'", "zamo"]),
@@ -103,6 +103,14 @@ BAD_SCENES = [
     ("invalid-yaml-tab", "black_hole:\n\tspin: 0.5\n", ["not valid scene YAML", "line 2"]),
     ("repeated-key", "black_hole:\n  spin: 0.5\n  spin: 0.7\n", ["spin", "twice", "line 3"]),
     ("non-text-key", "7: 0.5\n", ["7", "keys are text"]),
+    # One key in both spellings (issue: accepted silently before).
+    ("dotted-and-nested-key", "black_hole:\n  spin: 0.5\nblack_hole.spin: -0.5\n",
+     ["black_hole.spin", "twice"]),
+    # YAML 1.1 reads 1:30 as sexagesimal 90; the YAML 1.2 core schema keeps it text.
+    ("sexagesimal-number", "observer:\n  inclination: 1:30\n",
+     ["observer.inclination", "'1:30'"]),
+    ("underscore-number", "image:\n  width: 1_024\n", ["image.width", "'1_024'"]),
+    ("yaml-1.1-boolean", "output:\n  png: yes\n", ["output.png", "'yes'"]),
     # Deep enough to exhaust the parser's recursion under the default limit of 1000 frames.
     ("deep-nesting", "black_hole: " + "[" * 500 + "]" * 500 + "\n", ["nested"]),
     ("too-many-digits", "image:\n  width: 1" + "0" * 5000 + "\n", ["not valid scene YAML"]),
@@ -402,3 +410,23 @@ def test_bad_scene_with_side_files_is_refused(tmp_path, capsys, no_tracing, text
     status, out, err = run_cli(["still", str(scene), "--output-dir", str(out_dir)], capsys)
     assert_one_line_error(status, out, err, fragments)
     assert not out_dir.exists()
+
+
+def test_numbers_are_read_as_yaml_1_2_says(tmp_path):
+    # YAML 1.2.2 spec, sec. 10.3.2 (core schema): 020 is decimal twenty (YAML 1.1 made it
+    # octal 16), 0o20 is octal, 6.2e6 a float.
+    scene = tmp_path / "scene.yaml"
+    scene.write_text("image:\n  width: 020\n  height: 0o20\nblack_hole:\n  mass: 6.2e6\n",
+                     encoding="utf-8")
+    loaded = load_scene(scene)
+    assert loaded["image.width"] == 20
+    assert loaded["image.height"] == 16
+    assert loaded["black_hole.mass"] == 6.2e6
+
+
+def test_a_set_override_replaces_a_dotted_key_of_the_file(tmp_path):
+    # --set wins over the file, whichever spelling the file used for the key.
+    scene = tmp_path / "scene.yaml"
+    scene.write_text("black_hole.spin: -0.5\n", encoding="utf-8")
+    assert load_scene(scene, ["black_hole.spin=0.25"]).spin == 0.25
+

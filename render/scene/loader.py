@@ -235,9 +235,15 @@ def _flatten(document, prefix="", depth=0):
         if isinstance(value, dict) and path not in KEYS:
             if path not in SECTIONS:
                 raise SceneError(f"unknown section {_describe(path)}{_suggest(path)}")
-            flat.update(_flatten(value, path + ".", depth + 1))
+            entries = _flatten(value, path + ".", depth + 1)
         else:
-            flat[path] = value
+            entries = {path: value}
+        for entry, entry_value in entries.items():
+            # `black_hole: {spin: 0.5}` and `black_hole.spin: -0.5` name one key twice.
+            if entry in flat:
+                raise SceneError(f"{entry} is given twice (once nested under its section and "
+                                 f"once as the dotted key {entry!r}); give it once")
+            flat[entry] = entry_value
     return flat
 
 
@@ -380,13 +386,40 @@ class _StrictLoader(yaml.SafeLoader):
         return super().construct_mapping(node, deep)
 
 
-# PyYAML follows YAML 1.1, where 1e-9 and 6.2e6 are strings (the exponent needs
-# a sign and the mantissa a dot); scene files also accept the YAML 1.2 forms
-# (YAML 1.2 spec, sec. 10.2.1.4, core-schema float).
-_StrictLoader.add_implicit_resolver(
-    "tag:yaml.org,2002:float",
-    re.compile(r"^[-+]?(?:[0-9][0-9_]*(?:\.[0-9_]*)?|\.[0-9_]+)[eE][-+]?[0-9]+$"),
-    list("-+0123456789."))
+# PyYAML follows YAML 1.1, where 1e-9 and 6.2e6 are strings, 020 is octal 16, 1:30 is
+# sexagesimal 90 and yes/on are true.  Scene files are read with the YAML 1.2 core schema
+# instead (YAML 1.2.2 spec, sec. 10.3.2): plain scalars resolve as below and nothing else
+# is a number, a boolean, null or a date, so 1:30 stays text (and is refused where a number is
+# expected) and 020 is twenty.
+_CORE_SCHEMA = (
+    ("tag:yaml.org,2002:null", r"^(?:~|null|Null|NULL|)$", ["~", "n", "N", ""]),
+    ("tag:yaml.org,2002:bool", r"^(?:true|True|TRUE|false|False|FALSE)$", list("tTfF")),
+    ("tag:yaml.org,2002:int", r"^(?:[-+]?[0-9]+|0o[0-7]+|0x[0-9a-fA-F]+)$",
+     list("-+0123456789")),
+    ("tag:yaml.org,2002:float",
+     r"^(?:[-+]?(?:\.[0-9]+|[0-9]+(?:\.[0-9]*)?)(?:[eE][-+]?[0-9]+)?"
+     r"|[-+]?\.(?:inf|Inf|INF)|\.(?:nan|NaN|NAN))$", list("-+0123456789.")),
+)
+_StrictLoader.yaml_implicit_resolvers = {
+    first: [(tag, rx) for tag, rx in resolvers
+            if tag not in {tag for tag, _, _ in _CORE_SCHEMA} | {"tag:yaml.org,2002:timestamp"}]
+    for first, resolvers in yaml.SafeLoader.yaml_implicit_resolvers.items()}
+for _tag, _pattern, _first in _CORE_SCHEMA:
+    _StrictLoader.add_implicit_resolver(_tag, re.compile(_pattern), _first)
+
+
+def _construct_core_int(loader, node):
+    """A YAML 1.2 core-schema integer: decimal, 0o octal or 0x hexadecimal."""
+    text = loader.construct_scalar(node)
+    if text.startswith("0o"):
+        return int(text[2:], 8)
+    if text.startswith("0x"):
+        return int(text[2:], 16)
+    return int(text)
+
+
+_StrictLoader.add_constructor("tag:yaml.org,2002:int", _construct_core_int)
+
 
 def parse_yaml_text(text, source):
     """Parse YAML text with the strict safe loader; errors become one-line SceneErrors."""
@@ -437,6 +470,7 @@ def apply_overrides(document, overrides):
             raise SceneError(f"--set: unknown key {_describe(key)} (given {_describe(text.strip())})"
                              f"{_suggest(key)}")
         value = parse_yaml_text(text, f"--set {key}") if text.strip() else ""
+        document.pop(key, None)   # a dotted spelling in the file: the override replaces it
         node = document
         parts = key.split(".")
         for part in parts[:-1]:
