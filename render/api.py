@@ -13,9 +13,10 @@ Examples
 """
 
 import os
+import warnings
 from pathlib import Path
 
-from .errors import OutputFolderError, UsageError
+from .errors import NullrayWarning, OutputFolderError, UsageError
 from .film.sequence import render_sequence as _render_sequence_here
 from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
@@ -43,9 +44,25 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps
         if needs_sensor(scene):
             raise UsageError("--scheduler renders bands of rows, but a sky or "
                              "image.supersampling needs the whole image at once")
-        return render_still_on_cluster(scene, scheduler, workdir=workdir, progress=progress)
-    return _render_still_here(scene, progress, memory_budget=memory_budget, workdir=workdir,
-                              maps=maps)
+        result = render_still_on_cluster(scene, scheduler, workdir=workdir, progress=progress)
+    else:
+        result = _render_still_here(scene, progress, memory_budget=memory_budget,
+                                    workdir=workdir, maps=maps)
+    if scene["animation.keyframes"]:
+        _warn(result, KEYFRAMES_IGNORED)
+    return result
+
+
+# A still shows the scene's own values; keyframes belong to a film.
+KEYFRAMES_IGNORED = ("animation.keyframes are ignored by a still, which shows the scene's own "
+                     "values; render one frame of the film with `nullray sequence "
+                     "--set animation.frames=1` instead")
+
+
+def _warn(result, message):
+    """Record a warning in the still's metadata (the command line prints it) and warn API users."""
+    result.metadata.setdefault("observing", {}).setdefault("warnings", []).append(message)
+    warnings.warn(message, NullrayWarning, stacklevel=3)
 
 
 def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, scheduler=None):

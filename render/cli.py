@@ -2,9 +2,10 @@
 
 import argparse
 import sys
+import warnings
 
 from .about import __version__
-from .errors import BAD_INPUT_ERRORS, RUN_ERRORS
+from .errors import BAD_INPUT_ERRORS, RUN_ERRORS, NullrayWarning, UsageError
 
 EXIT_FAILED = 1       # a failure while running: a write that failed, a worker that died
 EXIT_BAD_INPUT = 2
@@ -171,12 +172,17 @@ def _one_line_error(exc, status):
 def main(argv=None):
     """Entry point of the ``nullray`` command; returns the exit status."""
     args = _parser().parse_args(argv)
+    # The command prints the warnings it is given as one line each (from the metadata).
+    warnings.filterwarnings("ignore", category=NullrayWarning)
     try:
         if args.command == "keys":
             from .scene.keys import keys_reference
 
             print(keys_reference())
             return 0
+        if not args.output_dir.strip():
+            raise UsageError("--output-dir '' is not allowed; give a folder, e.g. "
+                             "--output-dir outputs")
         if args.command == "measure":
             return _measure(args)
         if args.command == "sequence":

@@ -8,7 +8,7 @@ raise these without importing the room that reports them.
 
 __all__ = ["SceneError", "UsageError", "OutputExists", "OutputFolderError", "OutputWriteError",
            "SequenceFolderError", "SchedulerError", "WorkerLostError", "BAD_INPUT_ERRORS",
-           "RUN_ERRORS"]
+           "RUN_ERRORS", "NullrayWarning"]
 
 
 class SceneError(ValueError):
@@ -52,4 +52,9 @@ class WorkerLostError(RuntimeError):
 BAD_INPUT_ERRORS = (SceneError, UsageError, OutputExists, OutputFolderError, SequenceFolderError,
                     SchedulerError)
 RUN_ERRORS = (OutputWriteError, WorkerLostError)
+
+
+class NullrayWarning(UserWarning):
+    """A result that could mislead (ignored keys, coarse sampling...); the command line
+    prints each as one line ``nullray: warning: ...`` instead of Python's own display."""
 

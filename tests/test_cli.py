@@ -302,3 +302,51 @@ def test_interrupt_exits_130_and_writes_nothing(tmp_path, capsys, monkeypatch):
     assert err.count("\n") == 1 and "interrupted" in err and "Traceback" not in err
     out_dir = tmp_path / "out"
     assert not out_dir.exists() or not any(out_dir.iterdir())
+
+
+def test_a_scene_file_name_that_cannot_name_outputs_is_refused(tmp_path, capsys, no_tracing):
+    # The file's stem names the outputs by default; "my scene" would write "my scene.png".
+    scene = tmp_path / "my scene.yaml"
+    scene.write_text("black_hole:\n  spin: 0.5\n", encoding="utf-8")
+    out_dir = tmp_path / "out"
+    status, out, err = run_cli(["still", scene, "--output-dir", out_dir], capsys)
+    assert status == EXIT_BAD_INPUT
+    assert err.count("\n") == 1 and "'my scene'" in err and "--set name=" in err
+    assert not out_dir.exists()
+
+
+def test_naming_the_outputs_makes_any_scene_file_name_usable(tmp_path, capsys):
+    scene = tmp_path / "my scene.yaml"
+    scene.write_text("black_hole:\n  spin: 0.5\n", encoding="utf-8")
+    out_dir = tmp_path / "out"
+    status, _, _ = run_cli(["still", scene, "--output-dir", out_dir, *SMALL,
+                            "--set", "name=my-scene", "--quiet"], capsys)
+    assert status == 0 and (out_dir / "my-scene.png").is_file()
+
+
+@pytest.mark.parametrize("command", ["still", "measure", "sequence"])
+def test_an_empty_output_dir_is_refused(tmp_path, capsys, no_tracing, monkeypatch, command):
+    monkeypatch.chdir(tmp_path)
+    scene = tmp_path / "scene.yaml"
+    scene.write_text("animation:\n  frames: 2\n", encoding="utf-8")
+    status, out, err = run_cli([command, scene, "--output-dir", ""], capsys)
+    assert status == EXIT_BAD_INPUT
+    assert err.count("\n") == 1 and "--output-dir ''" in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["scene.yaml"]
+
+
+def test_a_still_says_that_it_ignores_keyframes(tmp_path, capsys):
+    import render
+    from render.errors import NullrayWarning
+
+    keyframes = ["--set", "animation.keyframes=[{frame: 0, black_hole.spin: 0.1}, "
+                 "{frame: 4, black_hole.spin: 0.8}]"]
+    status, out, err = run_cli(["still", *SMALL, *keyframes, "--output-dir", tmp_path], capsys)
+    assert status == 0
+    lines = [line for line in err.splitlines() if "keyframes" in line]
+    assert len(lines) == 1 and lines[0].startswith("nullray: warning:")
+    with pytest.warns(NullrayWarning, match="keyframes are ignored"):
+        result = render.render_still(render.default_scene(
+            ["animation.keyframes=[{frame: 0, black_hole.spin: 0.1}]"],
+            **{"image.width": 8, "image.height": 8}))
+    assert any("keyframes" in w for w in result.metadata["observing"]["warnings"])

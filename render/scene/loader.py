@@ -349,8 +349,16 @@ def scene_from_dict(document, source="<dict>", default_name="scene"):
         if path not in KEYS:
             raise SceneError(f"unknown key {_describe(path)} (given {_describe(value)}){_suggest(path)}")
         values[path] = _coerce(KEYS[path], value)
+    if "name" not in values:
+        # The scene file's name names the outputs: it must pass the same check as `name`.
+        try:
+            values["name"] = _coerce(KEYS["name"], default_name)
+        except SceneError:
+            raise SceneError(f"the scene file's name {_describe(default_name)} cannot name the "
+                             f"output files ({KEYS['name'].allowed}); set name in the scene or "
+                             "--set name=...") from None
     for path, spec in KEYS.items():
-        values.setdefault(path, spec.default if path != "name" else default_name)
+        values.setdefault(path, spec.default)
     _check_consistency(values)
     return Scene(values=values, source=source, document=nest_values(values))
 
