@@ -17,43 +17,40 @@ before it.
 """
 
 from .about import __version__
-from .spacetime.kerr import (
-    circular_orbit_angular_momentum,
-    circular_orbit_energy,
-    circular_orbit_time_component,
-    ergosphere_radius,
-    horizon_radii,
-    isco_radius,
-    keplerian_angular_velocity,
-    photon_orbit_radii,
-    photon_orbit_radius,
-)
-from .errors import OutputExists, OutputWriteError, SceneError, WorkerLostError
-from .scene.loader import Scene, default_scene, load_scene
-from .light.transfer import trace_points
-from .light.thermal import (
-    eddington_luminosity,
-    effective_temperature,
-    page_thorne_flux,
-    planck_nu,
-    radiative_efficiency,
-)
-from .imaging.result import StillResult
-from .output.files import write_still
-from .output.products import write_products
-from .measure.shadow import critical_curve, shadow_moments
-from .measure.shadow_measurement import measure_scene
-from .api import make_still, render_sequence, render_still
 
-__all__ = [
-    "__version__",
-    "circular_orbit_angular_momentum", "circular_orbit_energy", "circular_orbit_time_component",
-    "ergosphere_radius", "horizon_radii", "isco_radius", "keplerian_angular_velocity",
-    "photon_orbit_radii", "photon_orbit_radius",
-    "SceneError", "OutputExists", "OutputWriteError", "WorkerLostError",
-    "Scene", "default_scene", "load_scene",
-    "trace_points", "StillResult", "render_still", "make_still", "render_sequence",
-    "write_still", "radiative_efficiency", "page_thorne_flux", "effective_temperature",
-    "eddington_luminosity", "planck_nu", "write_products",
-    "critical_curve", "shadow_moments", "measure_scene",
-]
+# Public names, loaded on first use (PEP 562), so that `import render.cli` stays light:
+# the command line can then answer Ctrl-C in its first second with one line.
+_PUBLIC = {
+    "circular_orbit_angular_momentum": "spacetime.kerr", "circular_orbit_energy": "spacetime.kerr",
+    "circular_orbit_time_component": "spacetime.kerr", "ergosphere_radius": "spacetime.kerr",
+    "horizon_radii": "spacetime.kerr", "isco_radius": "spacetime.kerr",
+    "keplerian_angular_velocity": "spacetime.kerr", "photon_orbit_radii": "spacetime.kerr",
+    "photon_orbit_radius": "spacetime.kerr",
+    "SceneError": "errors", "OutputExists": "errors", "OutputWriteError": "errors",
+    "WorkerLostError": "errors", "NullrayWarning": "errors",
+    "Scene": "scene.loader", "default_scene": "scene.loader", "load_scene": "scene.loader",
+    "trace_points": "light.transfer",
+    "eddington_luminosity": "light.thermal", "effective_temperature": "light.thermal",
+    "page_thorne_flux": "light.thermal", "planck_nu": "light.thermal",
+    "radiative_efficiency": "light.thermal",
+    "StillResult": "imaging.result", "write_still": "output.files",
+    "write_products": "output.products", "critical_curve": "measure.shadow",
+    "shadow_moments": "measure.shadow", "measure_scene": "measure.shadow_measurement",
+    "make_still": "api", "render_sequence": "api", "render_still": "api",
+}
+
+__all__ = ["__version__", *_PUBLIC]
+
+
+def __getattr__(name):
+    if name in _PUBLIC:
+        import importlib
+
+        value = getattr(importlib.import_module(f"{__name__}.{_PUBLIC[name]}"), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_PUBLIC))

@@ -1,15 +1,19 @@
 """Command line: argument parsing only; the work is done by the Python API."""
 
 import argparse
+import contextlib
+import signal
 import sys
+import threading
 import warnings
 
 from .about import __version__
-from .errors import BAD_INPUT_ERRORS, RUN_ERRORS, NullrayWarning, UsageError
+from .errors import BAD_INPUT_ERRORS, RUN_ERRORS, NullrayWarning, Terminated, UsageError
 
 EXIT_FAILED = 1       # a failure while running: a write that failed, a worker that died
 EXIT_BAD_INPUT = 2
-EXIT_INTERRUPTED = 130
+EXIT_INTERRUPTED = 130   # 128 + SIGINT
+EXIT_TERMINATED = 143    # 128 + SIGTERM
 
 
 def _add_common_options(command):
@@ -86,7 +90,7 @@ def _load(args):
     return default_scene(args.overrides, name="default")
 
 
-def _still(args):
+def _still(args, shown=()):
     from .api import make_still
     from .progress import RayProgress
 
@@ -100,11 +104,11 @@ def _still(args):
     finally:
         bar.close()
     if not args.quiet:
-        _print_still_summary(scene, result, paths)
+        _print_still_summary(scene, result, paths, shown)
     return 0
 
 
-def _print_still_summary(scene, result, paths):
+def _print_still_summary(scene, result, paths, shown=()):
     meta = result.metadata
     height, width = result.pixels.shape[:2]
     counts = ", ".join(f"{k} {v}" for k, v in meta["fate_counts"].items())
@@ -123,7 +127,8 @@ def _print_still_summary(scene, result, paths):
         stars = observed["sky"]
         print(f"sky: {stars['stars']} stars, {stars['star_images']:.0f} star images in view")
     for warning in observed.get("warnings", ()):
-        print(f"nullray: warning: {warning}", file=sys.stderr)
+        if warning not in shown:   # those warned while rendering are printed already
+            print(f"nullray: warning: {warning}", file=sys.stderr)
     if "total_flux_jy" in observed:
         print(f"total flux density {observed['total_flux_jy']:.4g} Jy at "
               f"{observed['frequency_hz']:.4g} Hz; pixel {observed['pixel_scale']:.4g} "
@@ -171,31 +176,82 @@ def _one_line_error(exc, status):
 
 def main(argv=None):
     """Entry point of the ``nullray`` command; returns the exit status."""
-    args = _parser().parse_args(argv)
-    # The command prints the warnings it is given as one line each (from the metadata).
-    warnings.filterwarnings("ignore", category=NullrayWarning)
-    try:
-        if args.command == "keys":
-            from .scene.keys import keys_reference
+    received = []
+    with _stop_signals(received), warnings.catch_warnings():
+        shown = set()
+        warnings.simplefilter("always", NullrayWarning)
+        warnings.showwarning = _one_line_warnings(shown, warnings.showwarning)
+        args = None
+        try:
+            args = _parser().parse_args(argv)
+            return _run(args, shown)
+        except BAD_INPUT_ERRORS as exc:
+            return _one_line_error(exc, EXIT_BAD_INPUT)
+        except RUN_ERRORS as exc:
+            return _one_line_error(exc, EXIT_FAILED)
+        except KeyboardInterrupt as exc:
+            return _interrupted(isinstance(exc, Terminated), args)
+        except ImportError:
+            # Ctrl-C while numba initialises surfaces as an ImportError: still a stop.
+            if received:
+                return _interrupted(received[-1] != signal.SIGINT, args)
+            raise
 
-            print(keys_reference())
-            return 0
-        if not args.output_dir.strip():
-            raise UsageError("--output-dir '' is not allowed; give a folder, e.g. "
-                             "--output-dir outputs")
-        if args.command == "measure":
-            return _measure(args)
-        if args.command == "sequence":
-            return _sequence(args)
-        return _still(args)
-    except BAD_INPUT_ERRORS as exc:
-        return _one_line_error(exc, EXIT_BAD_INPUT)
-    except RUN_ERRORS as exc:
-        return _one_line_error(exc, EXIT_FAILED)
-    except KeyboardInterrupt:
-        print(f"nullray: interrupted; finished outputs (if any) are in {args.output_dir}/",
-              file=sys.stderr)
-        return EXIT_INTERRUPTED
+
+def _run(args, shown):
+    if args.command == "keys":
+        from .scene.keys import keys_reference
+
+        print(keys_reference())
+        return 0
+    if not args.output_dir.strip():
+        raise UsageError("--output-dir '' is not allowed; give a folder, e.g. "
+                         "--output-dir outputs")
+    if args.command == "measure":
+        return _measure(args)
+    if args.command == "sequence":
+        return _sequence(args)
+    return _still(args, shown)
+
+
+def _interrupted(by_sigterm, args):
+    what = "stopped by SIGTERM" if by_sigterm else "interrupted"
+    folder = getattr(args, "output_dir", None)
+    where = f" in {folder}/" if folder else ""
+    print(f"nullray: {what}; finished outputs (if any) are{where or ' kept'}, nothing "
+          "half-written", file=sys.stderr)
+    return EXIT_TERMINATED if by_sigterm else EXIT_INTERRUPTED
+
+
+@contextlib.contextmanager
+def _stop_signals(received):
+    """Ctrl-C and SIGTERM stop the work at a clean point (KeyboardInterrupt / Terminated)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def stop(number, frame):
+        received.append(number)
+        raise Terminated() if number == signal.SIGTERM else KeyboardInterrupt()
+
+    previous = {number: signal.signal(number, stop) for number in (signal.SIGINT, signal.SIGTERM)}
+    try:
+        yield
+    finally:
+        for number, handler in previous.items():
+            signal.signal(number, handler)
+
+
+def _one_line_warnings(shown, fallback):
+    """A showwarning that prints a NullrayWarning as one line, once."""
+    def show(message, category, filename, lineno, file=None, line=None):
+        if not issubclass(category, NullrayWarning):
+            return fallback(message, category, filename, lineno, file, line)
+        text = str(message).replace("\n", " ")
+        if text not in shown:
+            shown.add(text)
+            print(f"nullray: warning: {text}", file=sys.stderr)
+    return show
 
 
 if __name__ == "__main__":

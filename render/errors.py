@@ -8,7 +8,7 @@ raise these without importing the room that reports them.
 
 __all__ = ["SceneError", "UsageError", "OutputExists", "OutputFolderError", "OutputWriteError",
            "SequenceFolderError", "SchedulerError", "WorkerLostError", "BAD_INPUT_ERRORS",
-           "RUN_ERRORS", "NullrayWarning"]
+           "RUN_ERRORS", "NullrayWarning", "Terminated"]
 
 
 class SceneError(ValueError):
@@ -57,4 +57,9 @@ RUN_ERRORS = (OutputWriteError, WorkerLostError)
 class NullrayWarning(UserWarning):
     """A result that could mislead (ignored keys, coarse sampling...); the command line
     prints each as one line ``nullray: warning: ...`` instead of Python's own display."""
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, handled like Ctrl-C: work stops at a clean point, temporaries are removed,
+    and the command exits with status 143 (128 + 15)."""
 

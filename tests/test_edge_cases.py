@@ -414,11 +414,15 @@ def test_almost_edge_on_rays_cross_once_near_their_closest_approach(inclination)
 # --- Ctrl-C -----------------------------------------------------------------------------
 
 
-def test_sigint_during_tracing_exits_130_and_leaves_no_files(tmp_path):
+@pytest.mark.parametrize("number,status,word", [(signal.SIGINT, 130, "interrupted"),
+                                                (signal.SIGTERM, 143, "SIGTERM")])
+def test_a_stop_signal_during_tracing_exits_cleanly_and_leaves_no_files(tmp_path, number, status,
+                                                                       word):
     # A real process: a 512 x 512 still under a 0.01 GB budget is rendered in tiles, so
-    # a temporary folder exists in the output folder while it traces.  SIGINT then must
-    # end it with status 130 (128 + SIGINT, common practice), one line saying where
-    # finished outputs are, and nothing left behind.
+    # a temporary folder exists in the output folder while it traces.  SIGINT (or SIGTERM,
+    # handled alike) then must end it with status 128 + the signal's number (common
+    # practice: 130, 143), one line saying where finished outputs are, and nothing left
+    # behind (SIGTERM left the tile folder and .part files before).
     out_dir = tmp_path / "out"
     env = dict(os.environ, PYTHONUNBUFFERED="1")
     process = subprocess.Popen(
@@ -436,12 +440,46 @@ def test_sigint_during_tracing_exits_130_and_leaves_no_files(tmp_path):
         time.sleep(0.05)
     assert process.poll() is None, "the render ended before it could be interrupted"
     time.sleep(0.5)  # well inside the tracing of the first bands
+    process.send_signal(number)
+    out, err = process.communicate(timeout=120)
+    assert process.returncode == status, err
+    assert err.count("\n") == 1 and word in err and str(out_dir) in err, err
+    assert "Traceback" not in err and out == ""
+    assert list(out_dir.iterdir()) == []
+
+
+def _wait_for_library(process, fragment, timeout=60.0):
+    """Wait until the process has mapped a shared library whose path contains ``fragment``."""
+    maps = Path(f"/proc/{process.pid}/maps")
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline and process.poll() is None:
+        try:
+            if fragment in maps.read_text():
+                return True
+        except OSError:
+            pass
+        time.sleep(0.002)
+    return False
+
+
+@pytest.mark.skipif(not Path("/proc/self/maps").exists(), reason="needs Linux's /proc maps")
+@pytest.mark.parametrize("library", ["_multiarray_umath", "llvmlite"])
+def test_ctrl_c_during_start_up_is_one_line(tmp_path, library):
+    # Ctrl-C while the command is still importing (numpy, then numba's LLVM binding)
+    # printed a traceback, ended with status -2 or with "ImportError: initialization
+    # failed" before: it must be one line and 130.  The signal is sent as soon as the
+    # process maps the library, i.e. in the middle of that import.
+    process = subprocess.Popen(
+        [sys.executable, "-m", "render", "still", "--set", "image.width=8", "--set",
+         "image.height=8", "--output-dir", str(tmp_path / "out")],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+        cwd=Path(__file__).resolve().parents[1])
+    assert _wait_for_library(process, library), "the command never loaded " + library
     process.send_signal(signal.SIGINT)
     out, err = process.communicate(timeout=120)
     assert process.returncode == 130, err
-    assert err.count("\n") == 1 and "interrupted" in err and str(out_dir) in err, err
-    assert "Traceback" not in err and out == ""
-    assert list(out_dir.iterdir()) == []
+    assert err.count("\n") == 1 and "interrupted" in err and "Traceback" not in err, err
+    assert not (tmp_path / "out").exists()
 
 
 def test_sigint_is_deferred_until_the_kernel_call_returns():

@@ -52,6 +52,7 @@ Dormand & Prince (1980), J. Comput. Appl. Math. 6, 19.
 
 import contextlib
 import math
+import os
 import signal
 import threading
 
@@ -60,33 +61,43 @@ from numba import njit, prange
 
 @contextlib.contextmanager
 def deferred_interrupts():
-    """Hold SIGINT back while a parallel kernel runs; Ctrl-C then arrives right after it.
+    """Hold SIGINT and SIGTERM back while a parallel kernel runs; they arrive right after it.
 
     Ctrl-C during a parallel kernel call crashed the process now and then (a
     segmentation fault in about one run in six; blocking the signal alone did
-    not cure it).  Here SIGINT is blocked in the calling (main) thread, so the
-    worker threads it starts inherit the block, and a Python handler only
-    records the signal; KeyboardInterrupt (or the previous handler) follows once
-    the kernel has returned, at a clean point between kernel calls.
+    not cure it).  Here both signals are blocked in the calling (main) thread, so
+    the worker threads it starts inherit the block, and a Python handler only
+    records them; each is handed to the handler it had before (KeyboardInterrupt
+    for Ctrl-C, the command line's clean stop for SIGTERM) once the kernel has
+    returned, at a clean point between kernel calls.
     """
+    numbers = [signal.SIGINT] + ([signal.SIGTERM] if hasattr(signal, "SIGTERM") else [])
     if (threading.current_thread() is not threading.main_thread()
             or not hasattr(signal, "pthread_sigmask") or signal.getsignal(signal.SIGINT) is None):
         yield
         return
     received = []
-    handler = signal.signal(signal.SIGINT, lambda number, frame: received.append(number))
-    previous = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+    handlers = {number: signal.signal(number, lambda n, frame: received.append(n))
+                for number in numbers}
+    previous = signal.pthread_sigmask(signal.SIG_BLOCK, set(numbers))
     try:
         yield
     finally:
         signal.pthread_sigmask(signal.SIG_SETMASK, previous)
-        signal.signal(signal.SIGINT, handler)
-    if received:
+        for number, handler in handlers.items():
+            signal.signal(number, handler)
+    for number in dict.fromkeys(received):
         # Now hand the deferred signal to whatever handled it before.
-        if handler is signal.default_int_handler or handler == signal.SIG_DFL:
+        handler = handlers[number]
+        if handler is signal.default_int_handler:
             raise KeyboardInterrupt
-        if callable(handler):
-            handler(signal.SIGINT, None)
+        if handler == signal.SIG_DFL:
+            if number == signal.SIGINT:
+                raise KeyboardInterrupt
+            signal.pthread_sigmask(signal.SIG_UNBLOCK, {number})
+            os.kill(os.getpid(), number)   # the default action (SIGTERM ends the process)
+        elif callable(handler):
+            handler(number, None)
 
 
 FATE_ESCAPED = 0
