@@ -23,7 +23,8 @@ from .imaging.still import render_still as _render_still_here
 from .light.observing import prepare_observation
 from .output.files import check_free, still_paths, write_still
 from .output.products import product_paths, write_products
-from .parallel import auto_workers, check_scheduler, connect, frame_results, render_still_on_cluster
+from .parallel import (auto_workers, capped_workers, check_scheduler, connect, frame_results,
+                       render_still_on_cluster)
 from .scene.loader import preview_scene
 
 __all__ = ["render_still", "make_still", "render_sequence"]
@@ -135,7 +136,12 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
     client = connect(scheduler) if scheduler is not None else None
     try:
         def run_frames(jobs):
-            count = auto_workers(len(jobs)) if workers is None else workers
+            if workers is None:
+                count = auto_workers(len(jobs))
+            else:
+                count, note = capped_workers(workers, len(jobs))
+                if note and client is None:
+                    warnings.warn(note, NullrayWarning, stacklevel=2)
             return frame_results(jobs, workers=count, client=client)
 
         return _render_sequence_here(scene, output_dir, run_frames=run_frames,

@@ -25,7 +25,7 @@ from collections import Counter
 
 from .errors import SchedulerError, UsageError, WorkerLostError
 
-__all__ = ["SchedulerError", "auto_workers", "connect", "check_scheduler", "frame_results", "local_threads",
+__all__ = ["SchedulerError", "auto_workers", "capped_workers", "connect", "check_scheduler", "frame_results", "local_threads",
            "render_still_on_cluster"]
 
 CONNECT_TIMEOUT_S = 10
@@ -284,3 +284,26 @@ def auto_workers(frames_left, cores=None):
     """
     cores = cores or os.cpu_count() or 1
     return cores if frames_left >= AUTO_POOL_MIN_FRAMES else 1
+
+
+def capped_workers(requested, frames_left, cores=None):
+    """``(count, reason)``: at most one local worker per core and per frame left.
+
+    ``reason`` is None when ``requested`` is used as given, else a one-line note of
+    the cap (a process per frame beyond the cores only competes for them, and each
+    costs about 100 MB and a numba cache load).
+
+    Examples
+    --------
+    >>> capped_workers(2, 10, cores=4)
+    (2, None)
+    >>> capped_workers(1000000000, 10, cores=4)[0], capped_workers(8, 3, cores=4)[0]
+    (4, 3)
+    """
+    cores = cores or os.cpu_count() or 1
+    count = max(1, min(int(requested), cores, max(int(frames_left), 1)))
+    if count == requested:
+        return count, None
+    limit = (f"the {cores} cores" if count == cores
+             else f"the {frames_left} frame{'s' if frames_left != 1 else ''} left")
+    return count, f"--workers {requested} capped to {count} ({limit})"

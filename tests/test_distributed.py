@@ -134,3 +134,19 @@ def test_pool_workers_leave_when_the_client_is_killed(tmp_path):
     for process in alive:  # clean up before failing
         process.kill()
     assert not alive
+
+
+def test_a_huge_worker_count_is_capped_and_said_in_one_line(tmp_path, capsys):
+    # --workers 1000000000 spawned processes until stopped (issue 13): it is capped at
+    # the frames left (here 1, so no pool at all) and the command says so in one line.
+    from conftest import run_cli
+
+    scene = tmp_path / "tiny.yaml"
+    scene.write_text("image:\n  width: 16\n  height: 16\nobserver:\n  kind: distant\n"
+                     "animation:\n  frames: 1\n", encoding="utf-8")
+    status, out, err = run_cli(["sequence", scene, "--workers", "1000000000", "--output-dir",
+                                tmp_path / "out", "--quiet"], capsys)
+    assert status == 0, err
+    notes = [line for line in err.splitlines() if "--workers" in line]
+    assert notes == ["nullray: warning: --workers 1000000000 capped to 1 (the 1 frame left)"]
+    assert (tmp_path / "out" / "tiny" / "frame_00000.png").is_file()
