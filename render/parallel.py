@@ -21,14 +21,21 @@ Every worker needs the same nullray installed (``pip install -e .``).
 """
 
 import os
+import time
+import warnings
 from collections import Counter
 
-from .errors import SchedulerError, UsageError, WorkerLostError
+from .errors import NullrayWarning, SchedulerError, UsageError, WorkerLostError
 
 __all__ = ["SchedulerError", "auto_workers", "capped_workers", "connect", "check_scheduler", "frame_results", "local_threads",
            "render_still_on_cluster"]
 
 CONNECT_TIMEOUT_S = 10
+# How long a cluster may have no worker at all before a run gives up (README, Robustness);
+# a worker that joins within it picks the waiting frames up.
+WORKER_WAIT_S = 120.0
+# How often a waiting client looks at the scheduler's worker count.
+POLL_S = 2.0
 
 
 def local_threads(workers, cores=None):
@@ -140,7 +147,7 @@ def _caused_by_interrupt(exc):
     return False
 
 
-def frame_results(jobs, workers=1, client=None):
+def frame_results(jobs, workers=1, client=None, worker_wait=WORKER_WAIT_S):
     """Yield :class:`~render.film.sequence.FrameResult` for ``jobs``, in their order.
 
     Parameters
@@ -150,6 +157,8 @@ def frame_results(jobs, workers=1, client=None):
         Local processes; 1 renders in this process.
     client : dask.distributed.Client, optional
         Send the frames to this cluster instead.
+    worker_wait : float
+        Seconds the cluster may have no worker before :class:`WorkerLostError`.
     """
     from .film.sequence import render_frame
 
@@ -160,7 +169,7 @@ def frame_results(jobs, workers=1, client=None):
         threads = _dask_threads(client)
         futures = [client.submit(_dask_task, job, threads, pure=False,
                                  key=f"nullray-frame-{job.index}-{id(jobs)}") for job in jobs]
-        yield from _results_in_order(futures)
+        yield from _results_in_order(futures, client, worker_wait)
         return
     if workers <= 1:
         for job in jobs:
@@ -186,18 +195,21 @@ def frame_results(jobs, workers=1, client=None):
         yield from _results_in_order(futures)
 
 
-def _results_in_order(futures):
+def _results_in_order(futures, client=None, worker_wait=WORKER_WAIT_S):
     """Yield the futures' results in submission order; cancel the rest if stopped early.
 
     A worker that dies (killed, out of memory) becomes one :class:`WorkerLostError`;
-    the frames already yielded are kept by the caller, so a rerun resumes.
+    the frames already yielded are kept by the caller, so a rerun resumes.  With a
+    Dask ``client``, a cluster left without workers is said once (a warning) and
+    given up after ``worker_wait`` seconds unless a worker joins.
     """
     from concurrent.futures.process import BrokenProcessPool
 
     try:
         for number, future in enumerate(futures):
             try:
-                yield future.result()
+                yield (future.result() if client is None
+                       else _cluster_result(future, client, worker_wait))
             except BrokenProcessPool:
                 raise WorkerLostError(
                     f"a worker process died (killed, or out of memory) after {number} "
@@ -210,6 +222,34 @@ def _results_in_order(futures):
     finally:
         for future in futures:
             future.cancel()
+
+
+def _cluster_result(future, client, worker_wait):
+    """A Dask future's result, watching that the cluster still has a worker to compute it."""
+    alone_since = None
+    while True:
+        try:
+            return future.result(timeout=POLL_S)
+        except TimeoutError:   # dask.distributed's timeout is the built-in TimeoutError
+            pass
+        if _worker_count(client):
+            alone_since = None
+            continue
+        now = time.monotonic()
+        if alone_since is None:
+            alone_since = now
+            warnings.warn(f"no Dask worker is connected to the scheduler; waiting up to "
+                          f"{worker_wait:.0f} s for one to join", NullrayWarning, stacklevel=2)
+        elif now - alone_since > worker_wait:
+            raise WorkerLostError(f"no Dask worker joined the scheduler within "
+                                  f"{worker_wait:.0f} s after the last one left; what finished "
+                                  "is kept, rerun to resume")
+
+
+def _worker_count(client):
+    info = (client.scheduler_info(n_workers=-1) if _accepts_n_workers(client)
+            else client.scheduler_info())
+    return len(info["workers"])
 
 
 def _still_band_task(scene, rows, threads):
@@ -258,7 +298,7 @@ def render_still_on_cluster(scene, address, *, workdir=None, progress=None, band
                    for band in plan.bands()}
 
         def render_band(band, band_progress):
-            part = futures.pop(band).result()
+            part = _cluster_result(futures.pop(band), client, WORKER_WAIT_S)
             band_progress((band[1] - band[0]) * plan.width, None)
             return part
 

@@ -150,3 +150,30 @@ def test_a_huge_worker_count_is_capped_and_said_in_one_line(tmp_path, capsys):
     notes = [line for line in err.splitlines() if "--workers" in line]
     assert notes == ["nullray: warning: --workers 1000000000 capped to 1 (the 1 frame left)"]
     assert (tmp_path / "out" / "tiny" / "frame_00000.png").is_file()
+
+
+def test_a_cluster_left_without_workers_says_so_and_gives_up(tmp_path):
+    # A killed Dask worker left the client waiting silently forever (issue 13): it must
+    # warn once that it waits for workers, then stop with one WorkerLostError after the
+    # documented wait (shortened here) when none joins.
+    from dask.distributed import Client, LocalCluster
+
+    from render.errors import NullrayWarning, WorkerLostError
+    from render.film.sequence import plan_sequence
+    from render.parallel import frame_results
+
+    scene = default_scene(name="lonely", **{
+        "image.width": 96, "image.height": 96, "observer.distance": 60.0,
+        "animation.frames": 12, "animation.camera_path": "orbit"})
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, host="127.0.0.1",
+                      dashboard_address=None) as local, Client(local) as client:
+        client.wait_for_workers(1, timeout=120)
+        results = frame_results(plan_sequence(scene).jobs, client=client, worker_wait=3.0)
+        first = next(results)   # the frames are submitted and the first one is back
+        assert first.index == 0
+        local.scale(0)          # the only worker leaves while frames are waiting
+        with pytest.warns(NullrayWarning, match="no Dask worker"), \
+                pytest.raises(WorkerLostError, match="within 3 s") as caught:
+            for _ in results:
+                pass
+        assert "\n" not in str(caught.value)
