@@ -43,7 +43,6 @@ shifted, star colours are (a blackbody at g T).
 import functools
 import math
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
@@ -156,13 +155,6 @@ def _stars(density, seed):
     return stars
 
 
-def _resolve(scene, name):
-    path = Path(name)
-    if not path.is_absolute() and scene.source not in ("<defaults>", "<dict>"):
-        path = Path(scene.source).parent / path
-    return path
-
-
 def prepare_sky(scene):
     """Read the panorama or draw the stars of a scene; a bad file raises SceneError.
 
@@ -176,7 +168,7 @@ def prepare_sky(scene):
         return Sky(kind)
     if kind == "stars":
         return Sky(kind, stars=_stars(float(scene["sky.star_density"]), int(scene["sky.seed"])))
-    path = _resolve(scene, scene["sky.image"])
+    path = scene.side_file("sky.image")
     try:
         stat = path.stat()
         texture = _panorama(str(path), stat.st_mtime_ns, stat.st_size)

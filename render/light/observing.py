@@ -29,7 +29,6 @@ at the emission angle in the emitter's frame (:func:`render.light.emission.emiss
 """
 
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 
@@ -118,13 +117,6 @@ class Observation:
     info: dict = field(default_factory=dict)
 
 
-def _resolve_profile_path(scene):
-    path = Path(scene["emission.profile"])
-    if not path.is_absolute() and scene.source not in ("<defaults>", "<dict>"):
-        path = Path(scene.source).parent / path
-    return path
-
-
 def prepare_observation(scene):
     """Build the emission law and the mode's settings; bad input raises SceneError."""
     from .thermal import accretion_rate_g_per_s, radiative_efficiency
@@ -137,7 +129,7 @@ def prepare_observation(scene):
     if name == "power_law":
         obs.law = PowerLaw(index=scene["emission.index"])
     elif name == "profile":
-        path = _resolve_profile_path(scene)
+        path = scene.side_file("emission.profile")
         try:
             obs.law = RadialProfile.from_csv(path)
         except EmissionTableError as exc:
