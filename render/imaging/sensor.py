@@ -48,6 +48,7 @@ import numpy as np
 
 from ..geodesics.integrator import FATE_ESCAPED
 from ..light.color import SRGB_LUMINANCE
+from ..light.observing import exposure_white
 from .tiling import HALO_ROWS
 
 __all__ = ["FILTERS", "SENSOR_MODES", "check_sensor", "prepare_sky", "needs_sensor",
@@ -265,10 +266,10 @@ def refine_mask(fate, crossings, display, threshold):
 
 
 def _white(observation, scene, shaded):
-    if observation.mode == "true_colour":
-        return float(shaded.info["colour_reference_y"])
-    return float(observation.law.reference_intensity(scene.inner_radius,
-                                                     scene["disk.outer_radius"]))
+    white = exposure_white(observation, scene.inner_radius, scene["disk.outer_radius"])
+    if white is None:   # the automatic colour exposure: the white the shading chose
+        white = float(shaded.info["colour_reference_y"])
+    return white
 
 
 def _disk_radiance(observation, shaded):
