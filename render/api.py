@@ -21,13 +21,27 @@ from .film.sequence import render_sequence as _render_sequence_here
 from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
 from .light.observing import prepare_observation
+from .measure.shadow_measurement import measure_paths, measure_scene, write_measurement
 from .output.files import check_free, still_paths, write_still
 from .output.products import product_paths, write_products
 from .parallel import (auto_workers, capped_workers, check_scheduler, connect, frame_results,
                        render_still_on_cluster)
-from .scene.loader import preview_scene
+from .scene.keys import keys_reference
+from .scene.loader import default_scene, load_scene, preview_scene
 
-__all__ = ["render_still", "make_still", "render_sequence"]
+__all__ = ["open_scene", "keys_reference", "render_still", "make_still", "render_sequence",
+           "make_measurement"]
+
+
+def open_scene(path=None, overrides=()):
+    """The validated scene of a YAML file, or the built-in default scene when ``path`` is None.
+
+    ``overrides`` are ``key=value`` strings applied on top (as given to ``--set``);
+    the default scene is named ``default``.
+    """
+    if path:
+        return load_scene(path, overrides)
+    return default_scene(overrides, name="default")
 
 
 def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps=None,
@@ -96,6 +110,22 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
     finally:
         result.release()
     return result, paths
+
+
+def make_measurement(scene, output_dir="outputs", *, tolerances=None, overwrite=False,
+                     on_measured=None):
+    """Measure a scene's shadow and write the report and overlay; return ``(measurement, paths)``.
+
+    The targets are checked free (unless ``overwrite``) before any tracing.
+    ``tolerances`` ({quantity: tolerance}) override the scene's ``measure.*`` keys;
+    ``on_measured(measurement)`` is called once it is measured, before its files
+    are written (the command line prints the check table there).
+    """
+    check_free(measure_paths(scene, output_dir).values(), overwrite)
+    measurement = measure_scene(scene, tolerances)
+    if on_measured is not None:
+        on_measured(measurement)
+    return measurement, write_measurement(measurement, scene, output_dir, overwrite)
 
 
 def _check_writable_folder(folder):

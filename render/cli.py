@@ -68,26 +68,23 @@ def _parser():
 
 
 def _measure(args):
-    from .measure.shadow_measurement import (format_table, measure_paths, measure_scene,
-                                             parse_tolerances, write_measurement)
-    from .output.files import check_free
+    from .api import make_measurement
+    from .measure.shadow_measurement import format_table, parse_tolerances
 
     tolerances = parse_tolerances(args.tolerances)
     scene = _load(args)
-    check_free(measure_paths(scene, args.output_dir).values(), args.overwrite)
-    measurement = measure_scene(scene, tolerances)
-    print(format_table(measurement))
-    for path in write_measurement(measurement, scene, args.output_dir, args.overwrite).values():
+    measurement, paths = make_measurement(
+        scene, args.output_dir, tolerances=tolerances, overwrite=args.overwrite,
+        on_measured=lambda measured: print(format_table(measured)))
+    for path in paths.values():
         print(f"wrote {path}")
     return 0 if measurement.passed else 1
 
 
 def _load(args):
-    from .scene.loader import default_scene, load_scene
+    from .api import open_scene
 
-    if args.scene:
-        return load_scene(args.scene, args.overrides)
-    return default_scene(args.overrides, name="default")
+    return open_scene(args.scene, args.overrides)
 
 
 def _still(args, shown=()):
@@ -200,7 +197,7 @@ def main(argv=None):
 
 def _run(args, shown):
     if args.command == "keys":
-        from .scene.keys import keys_reference
+        from .api import keys_reference
 
         print(keys_reference())
         return 0

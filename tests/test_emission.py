@@ -93,3 +93,36 @@ def test_bad_profile_table_one_line_exit_2_nothing_written(capsys, tmp_path, con
                                 f"emission.profile={table}", "--output-dir", str(out)])
     assert status == 2 and err.count("\n") == 1 and "profile" in err
     assert not out.exists()
+
+
+def test_exposure_white_follows_the_readme_rule(small_scene):
+    # README, "Exposure": the power law's white is its intensity at the inner edge, r_in^-index
+    # (here r_in = 6 M, the ISCO of a = 0: Bardeen, Press & Teukolsky 1972).
+    from render.light.observing import exposure_white, prepare_observation
+
+    scene = small_scene(**{"black_hole.spin": 0.0, "emission.index": 2.5})
+    white = exposure_white(prepare_observation(scene), scene.inner_radius, 20.0)
+    assert white == pytest.approx(6.0 ** -2.5, rel=1e-14)
+    colour = {"emission.law": "novikov_thorne", "observing.mode": "true_colour"}
+    fixed = small_scene(**colour, **{"observing.colour_exposure": "fixed",
+                                     "observing.colour_reference": 3e11})
+    assert exposure_white(prepare_observation(fixed), fixed.inner_radius, 20.0) == 3e11
+    auto = small_scene(**colour)   # the automatic exposure takes its white from the image
+    assert exposure_white(prepare_observation(auto), auto.inner_radius, 20.0) is None
+
+
+def test_monochromatic_white_is_the_disks_peak_at_the_observed_frequency(small_scene):
+    # README, "Exposure": the peak rest-frame specific intensity over the disk; the peak is
+    # found independently by scipy's bounded scalar minimiser (Brent's method).
+    from scipy.optimize import minimize_scalar
+
+    from render.light.observing import exposure_white, prepare_observation
+
+    scene = small_scene(**{"emission.law": "novikov_thorne", "observing.mode": "monochromatic",
+                           "black_hole.mass": 4.0e7, "observing.frequency": 1.0e15})
+    observation = prepare_observation(scene)
+    r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
+    law, nu = observation.law, observation.frequency_hz
+    peak = minimize_scalar(lambda r: -float(law.specific_intensity(nu, np.array([r]))[0]),
+                           bounds=(r_in, r_out), method="bounded", options={"xatol": 1e-6})
+    assert exposure_white(observation, r_in, r_out) == pytest.approx(-peak.fun, rel=1e-4)

@@ -430,3 +430,24 @@ def test_a_set_override_replaces_a_dotted_key_of_the_file(tmp_path):
     scene.write_text("black_hole.spin: -0.5\n", encoding="utf-8")
     assert load_scene(scene, ["black_hole.spin=0.25"]).spin == 0.25
 
+
+
+def test_side_files_resolve_from_the_scene_files_folder(tmp_path):
+    # common practice: a relative path inside a file is relative to that file's folder.
+    folder = tmp_path / "scenes"
+    folder.mkdir()
+    scene_file = folder / "night.yaml"
+    scene_file.write_text("sky:\n  image: pano.png\nemission:\n  profile: tables/disk.csv\n")
+    scene = load_scene(scene_file)
+    assert scene.side_file("sky.image") == folder / "pano.png"
+    assert scene.side_file("emission.profile") == folder / "tables" / "disk.csv"
+    absolute = str(tmp_path / "elsewhere" / "pano.png")
+    assert load_scene(scene_file, [f"sky.image={absolute}"]).side_file("sky.image") == Path(
+        absolute)
+
+
+def test_side_files_of_a_scene_not_read_from_a_file():
+    # common practice: without a file to be relative to, a path is relative to the current folder.
+    scene = default_scene(**{"sky.image": "pano.png"})
+    assert scene.side_file("sky.image") == Path("pano.png")
+    assert scene.side_file("emission.profile") is None

@@ -293,24 +293,56 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
     check_observer_position(a, r, inclination_deg, frame)
     theta, sin_o, cos_o = polar_position(float(inclination_deg))
     phi_o = np.radians(azimuth_deg)
-    # Look direction in the local (r, theta, phi) triad, then the photon's
-    # direction of travel n = -d.
-    d = np.stack([-np.ones_like(x), -y / r, x / r])
-    d /= np.linalg.norm(d, axis=0)
-    n_r, n_theta, n_phi = -d[0], -d[1], -d[2]
+    n_r, n_theta, n_phi = _travel_directions(x, y, r)
     phi0 = np.full(x.size, phi_o)
     on_axis = sin_o == 0.0
     if on_axis:
-        # Off-axis frame vectors become the limits at azimuth phi_o; the ray
-        # moves away from the axis in the meridian plane of its transverse
-        # direction, which becomes its own phi with n_phi = 0 (so L = 0).
-        sign = cos_o
-        tx = -(sign * n_theta * np.cos(phi_o) - n_phi * np.sin(phi_o))
-        ty = -(sign * n_theta * np.sin(phi_o) + n_phi * np.cos(phi_o))
-        phi0 = np.arctan2(ty, tx)
-        n_theta = -sign * np.hypot(n_theta, n_phi)
-        n_phi = np.zeros_like(n_phi)
-        tetrad = observer_frame(a, r, 1e-8 if sign > 0 else np.pi - 1e-8, frame)
+        phi0, n_theta, n_phi = _on_axis_directions(n_theta, n_phi, phi_o, cos_o)
+    tetrad = _camera_tetrad(a, r, theta, frame, on_axis, cos_o, velocity)
+    # Photon 4-momentum with unit energy in the camera frame.
+    p = (tetrad[0][:, None] + n_r * tetrad[1][:, None] + n_theta * tetrad[2][:, None]
+         + n_phi * tetrad[3][:, None])
+    lam, eta, energy, mino_r, mino_theta = _constants_of_motion(p, a, r, theta, sin_o, cos_o,
+                                                                on_axis)
+    u = 1.0 / r
+    states = np.zeros((x.size, 6))
+    states[:, 0] = u
+    states[:, 1] = u * u * mino_r
+    states[:, 2] = cos_o
+    states[:, 3] = sin_o * mino_theta  # dmu/dsigma = -sin(theta) dtheta/dsigma
+    states[:, 4] = phi0
+    return RayBundle(states, lam, eta, 1.0 / energy, u)
+
+
+def _travel_directions(x, y, r):
+    """Unit directions of travel (n_r, n_theta, n_phi) in the camera's local triad.
+
+    The camera looks at the hole; the pixel at image-plane point (x, y) looks
+    along d = (-1, -y/r, x/r) normalised, and the photon arriving there travels
+    along n = -d.
+    """
+    d = np.stack([-np.ones_like(x), -y / r, x / r])
+    d /= np.linalg.norm(d, axis=0)
+    return -d[0], -d[1], -d[2]
+
+
+def _on_axis_directions(n_theta, n_phi, phi_o, cos_o):
+    """(phi0, n_theta, n_phi) of rays reaching a camera on the spin axis.
+
+    Off-axis frame vectors become the limits at azimuth phi_o; the ray moves
+    away from the axis in the meridian plane of its transverse direction,
+    which becomes its own phi with n_phi = 0 (so L = 0).
+    """
+    sign = cos_o
+    tx = -(sign * n_theta * np.cos(phi_o) - n_phi * np.sin(phi_o))
+    ty = -(sign * n_theta * np.sin(phi_o) + n_phi * np.cos(phi_o))
+    return np.arctan2(ty, tx), -sign * np.hypot(n_theta, n_phi), np.zeros_like(n_phi)
+
+
+def _camera_tetrad(a, r, theta, frame, on_axis, cos_o, velocity):
+    """The camera's tetrad: ``frame`` at its position, boosted by ``velocity`` if given."""
+    if on_axis:
+        tetrad = observer_frame(a, r, 1e-8 if cos_o > 0 else np.pi - 1e-8, frame)
         tetrad[3] = 0.0  # never used: n_phi = 0 on the axis
     else:
         tetrad = observer_frame(a, r, theta, frame)
@@ -318,11 +350,33 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
         from ..spacetime.motion import boost_frame
 
         tetrad = boost_frame(tetrad, velocity)
+    return tetrad
+
+
+def _constants_of_motion(p, a, r, theta, sin_o, cos_o, on_axis):
+    """(lambda, eta, E, Mino-time dr, Mino-time dtheta per |E|) of photon momenta p.
+
+    Parameters
+    ----------
+    p : ndarray (4, N)
+        Contravariant Boyer–Lindquist momenta (t, r, theta, phi) at the camera.
+    a, r, theta : float
+        Spin and the camera's position.
+    sin_o, cos_o : float
+        sin and cos of the camera's polar angle.
+    on_axis : bool
+        Whether the camera is on the spin axis (then lambda = 0).
+
+    Returns
+    -------
+    lam, eta, energy, mino_r, mino_theta : ndarray (N,)
+
+    References
+    ----------
+    Carter (1968), Phys. Rev. 174, 1559 (lambda = L/E, Carter constant eta = Q/E^2).
+    """
     sigma, delta, big_a = metric_functions(r, theta, a)
     sin2 = sin_o * sin_o
-    # Photon 4-momentum with unit energy in the camera frame.
-    p = (tetrad[0][:, None] + n_r * tetrad[1][:, None] + n_theta * tetrad[2][:, None]
-         + n_phi * tetrad[3][:, None])
     g_tt = -(1.0 - 2.0 * r / sigma)
     g_tphi = -2.0 * a * r * sin2 / sigma
     g_phiphi = big_a * sin2 / sigma
@@ -339,14 +393,7 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
     mino_theta = sigma * p[2] / np.abs(energy)
     mino_r = sigma * p[1] / np.abs(energy)
     eta = mino_theta ** 2 + polar_term
-    u = 1.0 / r
-    states = np.zeros((x.size, 6))
-    states[:, 0] = u
-    states[:, 1] = u * u * mino_r
-    states[:, 2] = cos_o
-    states[:, 3] = sin_o * mino_theta  # dmu/dsigma = -sin(theta) dtheta/dsigma
-    states[:, 4] = phi0
-    return RayBundle(states, lam, eta, 1.0 / energy, u)
+    return lam, eta, energy, mino_r, mino_theta
 
 
 @dataclass(frozen=True)

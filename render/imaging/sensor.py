@@ -43,12 +43,12 @@ shifted, star colours are (a blackbody at g T).
 import functools
 import math
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
 from ..geodesics.integrator import FATE_ESCAPED
 from ..light.color import SRGB_LUMINANCE
+from ..light.observing import exposure_white
 from .tiling import HALO_ROWS
 
 __all__ = ["FILTERS", "SENSOR_MODES", "check_sensor", "prepare_sky", "needs_sensor",
@@ -156,13 +156,6 @@ def _stars(density, seed):
     return stars
 
 
-def _resolve(scene, name):
-    path = Path(name)
-    if not path.is_absolute() and scene.source not in ("<defaults>", "<dict>"):
-        path = Path(scene.source).parent / path
-    return path
-
-
 def prepare_sky(scene):
     """Read the panorama or draw the stars of a scene; a bad file raises SceneError.
 
@@ -176,7 +169,7 @@ def prepare_sky(scene):
         return Sky(kind)
     if kind == "stars":
         return Sky(kind, stars=_stars(float(scene["sky.star_density"]), int(scene["sky.seed"])))
-    path = _resolve(scene, scene["sky.image"])
+    path = scene.side_file("sky.image")
     try:
         stat = path.stat()
         texture = _panorama(str(path), stat.st_mtime_ns, stat.st_size)
@@ -273,10 +266,10 @@ def refine_mask(fate, crossings, display, threshold):
 
 
 def _white(observation, scene, shaded):
-    if observation.mode == "true_colour":
-        return float(shaded.info["colour_reference_y"])
-    return float(observation.law.reference_intensity(scene.inner_radius,
-                                                     scene["disk.outer_radius"]))
+    white = exposure_white(observation, scene.inner_radius, scene["disk.outer_radius"])
+    if white is None:   # the automatic colour exposure: the white the shading chose
+        white = float(shaded.info["colour_reference_y"])
+    return white
 
 
 def _disk_radiance(observation, shaded):
@@ -351,103 +344,153 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ow
     velocity : array_like (3,), optional
         A moving camera's velocity (:func:`render.camera.observers.camera_rays`), for the extra rays.
     """
-    from .sky import camera_vectors, sky_vectors, splat_stars
-    from ..geodesics.tracing import escape_directions
-
     height, width = alpha.shape
-    lo, hi = (0, height) if own is None else own
-    if (lo, hi) != (0, height):
-        from .tiling import is_tileable
-
-        if not is_tileable(scene.values):
-            raise _scene_error("observing.colour_exposure = 'auto' needs the whole image at "
-                               "once; a band of rows cannot be finished alone")
+    rows = (0, height) if own is None else own
+    _check_band_can_be_finished(scene, rows, height)
     sky = prepare_sky(scene)
     white = _white(observation, scene, shaded) if white is None else float(white)
-    tolerance = scene["tracing.tolerance"]
     centre_dirs = None
     composite = _disk_radiance(observation, shaded).copy()
     if sky.kind != "none":
-        centre_dirs = escape_directions(bundle, raw, scene.spin, tolerance,
-                                        scene["tracing.max_steps"])
+        centre_dirs = _sky_directions(scene, bundle, raw)
     if sky.kind == "image":
         composite += _panorama_radiance(sky, observation, raw, bundle, scene, white,
                                         centre_dirs)
     info = dict(shaded.info)
     samples = np.ones(height * width, dtype=np.int32)
-    n = scene["image.supersampling"]
-    if n > 1:
-        if scene["image.adaptive"]:
-            fate = raw["fate"].reshape(height, width)
-            crossings = np.minimum(raw["n_crossings"], scene["disk.orders"] + 1).reshape(
-                height, width)
-            display = _brightness(observation, scene, composite, white).reshape(height, width)
-            mask = refine_mask(fate, crossings, display, scene["image.refine_threshold"])
-        else:
-            mask = np.ones((height, width), dtype=bool)
-        mask[:lo] = False   # a halo row is only a neighbour here
-        mask[hi:] = False
-        chosen = np.nonzero(mask.ravel())[0]
-        offsets = subpixel_offsets(n, scene["image.filter"])
-        roll = math.radians(scene["observer.roll"])
-        pixel = scene["observer.field_of_view"] / scene["image.width"]
-        ox = (math.cos(roll) * offsets[:, 0] - math.sin(roll) * offsets[:, 1]) * pixel
-        oy = (math.sin(roll) * offsets[:, 0] + math.cos(roll) * offsets[:, 1]) * pixel
-        x = (alpha.ravel()[chosen][:, None] + ox[None, :]).ravel()
-        y = (beta.ravel()[chosen][:, None] + oy[None, :]).ravel()
-        if x.size:
-            sub_bundle = scene.viewpoint().rays_at(x, y, velocity)
-            sub_raw, sub_shaded = trace(x, y, sub_bundle)
-            value = _disk_radiance(observation, sub_shaded)
-            if sky.kind == "image":
-                value = value + _panorama_radiance(
-                    sky, observation, sub_raw, sub_bundle, scene, white,
-                    escape_directions(sub_bundle, sub_raw, scene.spin, tolerance,
-                                      scene["tracing.max_steps"]))
-            composite[chosen] = value.reshape(chosen.size, n * n, -1).mean(axis=1)
-            samples[chosen] = n * n
-        info["antialias"] = {
-            "supersampling": n, "filter": scene["image.filter"],
-            "adaptive": scene["image.adaptive"], "pixels_refined": int(chosen.size),
-            "pixels": int((hi - lo) * width),
-            "samples_total": int(samples[lo * width:hi * width].sum()),
-            "samples_per_pixel_mean": float(samples[lo * width:hi * width].mean()),
-            "data_maps": "evaluated at pixel centres; only 'composite' and the picture are "
-                         "supersampled"}
+    if scene["image.supersampling"] > 1:
+        info["antialias"] = _supersample(scene, observation, sky, white, composite, samples,
+                                         raw, alpha, beta, rows, trace, velocity)
     if sky.kind != "none":
-        sky_info = {"kind": sky.kind,
-                    "convention": "equirectangular: row 0 at theta = 0 (spin axis), phi grows "
-                                  "to the left, phi = 0 at the left and right edges"}
+        info["sky"] = _sky_info(scene, sky)
+        if sky.kind == "stars":
+            info["sky"].update(_add_stars(scene, observation, sky, composite, white, bundle,
+                                          centre_dirs, alpha, beta, rows))
+    return _finished(observation, scene, shaded, composite, samples, white, info)
+
+
+def _check_band_can_be_finished(scene, rows, height):
+    """Refuse a band of rows whose exposure needs the whole image at once."""
+    if rows != (0, height):
+        from .tiling import is_tileable
+
+        if not is_tileable(scene.values):
+            raise _scene_error("observing.colour_exposure = 'auto' needs the whole image at "
+                               "once; a band of rows cannot be finished alone")
+
+
+def _sky_directions(scene, bundle, raw):
+    """(theta, phi) at infinity of the escaped rays of a traced bundle."""
+    from ..geodesics.tracing import escape_directions
+
+    return escape_directions(bundle, raw, scene.spin, scene["tracing.tolerance"],
+                             scene["tracing.max_steps"])
+
+
+def _pixels_to_refine(scene, observation, raw, composite, white, rows, shape):
+    """Mask (H, W) of the band's own pixels that get sub-pixel rays."""
+    if scene["image.adaptive"]:
+        fate = raw["fate"].reshape(shape)
+        crossings = np.minimum(raw["n_crossings"], scene["disk.orders"] + 1).reshape(shape)
+        display = _brightness(observation, scene, composite, white).reshape(shape)
+        mask = refine_mask(fate, crossings, display, scene["image.refine_threshold"])
+    else:
+        mask = np.ones(shape, dtype=bool)
+    mask[:rows[0]] = False   # a halo row is only a neighbour here
+    mask[rows[1]:] = False
+    return mask
+
+
+def _subpixel_points(scene, alpha, beta, chosen, n):
+    """Image-plane points (x, y) of the n x n sub-pixel rays of the pixels ``chosen``.
+
+    The filter's offsets are turned with the camera's roll, as the pixel grid is.
+    """
+    offsets = subpixel_offsets(n, scene["image.filter"])
+    roll = math.radians(scene["observer.roll"])
+    pixel = scene["observer.field_of_view"] / scene["image.width"]
+    ox = (math.cos(roll) * offsets[:, 0] - math.sin(roll) * offsets[:, 1]) * pixel
+    oy = (math.sin(roll) * offsets[:, 0] + math.cos(roll) * offsets[:, 1]) * pixel
+    x = (alpha.ravel()[chosen][:, None] + ox[None, :]).ravel()
+    y = (beta.ravel()[chosen][:, None] + oy[None, :]).ravel()
+    return x, y
+
+
+def _supersample(scene, observation, sky, white, composite, samples, raw, alpha, beta, rows,
+                 trace, velocity):
+    """Replace refined pixels of ``composite`` by their sub-pixel mean; return the counts.
+
+    ``composite`` and ``samples`` are updated in place.
+    """
+    height, width = alpha.shape
+    lo, hi = rows
+    n = scene["image.supersampling"]
+    mask = _pixels_to_refine(scene, observation, raw, composite, white, rows, (height, width))
+    chosen = np.nonzero(mask.ravel())[0]
+    x, y = _subpixel_points(scene, alpha, beta, chosen, n)
+    if x.size:
+        sub_bundle = scene.viewpoint().rays_at(x, y, velocity)
+        sub_raw, sub_shaded = trace(x, y, sub_bundle)
+        value = _disk_radiance(observation, sub_shaded)
         if sky.kind == "image":
-            sky_info.update({"image": sky.source, "brightness": scene["sky.brightness"]})
-        else:
-            theta, phi = centre_dirs
-            directions = sky_vectors(theta, phi).reshape(height, width, 3)
-            distance = scene["observer.distance"]
-            cam = camera_vectors(alpha, beta, distance)
-            g = np.broadcast_to(np.asarray(bundle.energy_ratio, dtype=float),
-                                theta.shape).reshape(height, width)
-            colour = observation.mode == "true_colour"
-            # A band counts the skipped triangles of its own cell rows only (cells lo..hi-1).
-            flux, images, skipped = splat_stars(sky.stars, directions, cam, g, colour=colour,
-                                                cells=(lo, hi))
-            # Drawn as flux per pixel (a point source has no surface brightness to keep).
-            composite += (flux * scene["sky.star_brightness"] * white).reshape(
-                height * width, -1)
-            sky_info.update({"star_brightness": scene["sky.star_brightness"],
-                             "stars": len(sky.stars), "star_density_per_deg2":
-                             scene["sky.star_density"], "seed": scene["sky.seed"],
-                             "star_images": float(images[lo:hi].sum()),
-                             "sky_triangles_skipped": skipped,
-                             "magnitudes": "0 to 8, dN/dm ~ 10^(0.6 m)"})
-        info["sky"] = sky_info
+            value = value + _panorama_radiance(sky, observation, sub_raw, sub_bundle, scene,
+                                               white, _sky_directions(scene, sub_bundle, sub_raw))
+        composite[chosen] = value.reshape(chosen.size, n * n, -1).mean(axis=1)
+        samples[chosen] = n * n
+    own_samples = samples[lo * width:hi * width]
+    return {
+        "supersampling": n, "filter": scene["image.filter"],
+        "adaptive": scene["image.adaptive"], "pixels_refined": int(chosen.size),
+        "pixels": int((hi - lo) * width),
+        "samples_total": int(own_samples.sum()),
+        "samples_per_pixel_mean": float(own_samples.mean()),
+        "data_maps": "evaluated at pixel centres; only 'composite' and the picture are "
+                     "supersampled"}
+
+
+def _sky_info(scene, sky):
+    """The metadata of a still's sky that does not depend on the band."""
+    info = {"kind": sky.kind,
+            "convention": "equirectangular: row 0 at theta = 0 (spin axis), phi grows "
+                          "to the left, phi = 0 at the left and right edges"}
+    if sky.kind == "image":
+        info.update({"image": sky.source, "brightness": scene["sky.brightness"]})
+    return info
+
+
+def _add_stars(scene, observation, sky, composite, white, bundle, centre_dirs, alpha, beta,
+               rows):
+    """Add the star images seen by the pixel-centre rays to ``composite``; return their counts."""
+    from .sky import camera_vectors, sky_vectors, splat_stars
+
+    height, width = alpha.shape
+    lo, hi = rows
+    theta, phi = centre_dirs
+    directions = sky_vectors(theta, phi).reshape(height, width, 3)
+    cam = camera_vectors(alpha, beta, scene["observer.distance"])
+    g = np.broadcast_to(np.asarray(bundle.energy_ratio, dtype=float),
+                        theta.shape).reshape(height, width)
+    colour = observation.mode == "true_colour"
+    # A band counts the skipped triangles of its own cell rows only (cells lo..hi-1).
+    flux, images, skipped = splat_stars(sky.stars, directions, cam, g, colour=colour,
+                                        cells=(lo, hi))
+    # Drawn as flux per pixel (a point source has no surface brightness to keep).
+    composite += (flux * scene["sky.star_brightness"] * white).reshape(height * width, -1)
+    return {"star_brightness": scene["sky.star_brightness"],
+            "stars": len(sky.stars), "star_density_per_deg2": scene["sky.star_density"],
+            "seed": scene["sky.seed"], "star_images": float(images[lo:hi].sum()),
+            "sky_triangles_skipped": skipped, "magnitudes": "0 to 8, dN/dm ~ 10^(0.6 m)"}
+
+
+def _finished(observation, scene, shaded, composite, samples, white, info):
+    """The Shaded of a finished still: its picture, composite and sample counts."""
+    from ..light.observing import Shaded
+
     pixels, pixels16 = _display(observation, scene, composite, white)
     products = dict(shaded.products)
     products["composite"] = composite[:, 0] if composite.shape[1] == 1 else composite
     products["samples"] = samples
     if pixels16 is not None:
         products["pixels16"] = pixels16
-    from ..light.observing import Shaded
-
     return Shaded(intensity=shaded.intensity, pixels=pixels, products=products,
                   tables=shaded.tables, info=info)

@@ -61,63 +61,75 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps
 def _render_band(scene, observation, rows, progress, maps=True):
     """Render the image rows ``rows = (start, stop)`` (all rows if None) as a StillResult."""
     started = time.perf_counter()
-    width, height = scene["image.width"], scene["image.height"]
-    if rows is not None:
-        height = rows[1] - rows[0]
-    orders = scene["disk.orders"]
-    spin = scene.spin
-    r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
     sensor = needs_sensor(scene)
     # A band with a sky or supersampling is traced with a halo of neighbouring rows
     # (render.imaging.sensor.halo_rows), so that its refinement and star images see the
     # neighbours they see untiled; only the band's own rows are kept.
     traced_rows = halo_rows(rows, scene["image.height"]) if sensor and rows is not None else rows
     alpha, beta, bundle = scene.viewpoint().rays(traced_rows)
-    method = scene.trace_settings().method
-    band_progress = progress
-    if progress is not None and traced_rows != rows:
-        traced_total = alpha.size
-
-        def band_progress(done, total):   # the halo's rays are not counted twice
-            progress(done * height * width // traced_total, height * width)
-    raw, g, hits, shaded = trace_and_shade(scene, observation, alpha, beta, bundle,
-                                           band_progress, maps)
+    own_rays = _band_height(scene, rows) * scene["image.width"]
+    raw, g, hits, shaded = trace_and_shade(
+        scene, observation, alpha, beta, bundle,
+        _halo_free_progress(progress, alpha.size, own_rays, traced_rows != rows), maps)
     traced = time.perf_counter()
+    own = None if traced_rows == rows else (rows[0] - traced_rows[0], rows[1] - traced_rows[0])
     if sensor:
         # The sky behind the disk, supersampling and stars (render.imaging.sensor).
-        own = None if traced_rows == rows else (rows[0] - traced_rows[0],
-                                                rows[1] - traced_rows[0])
         shaded = finish_still(scene, observation, shaded, raw, bundle, alpha, beta,
                               lambda x, y, more: _traced_and_shaded(scene, observation, x, y,
                                                                     more), own=own)
     negative = energy_signs(bundle) < 0.0
-    if traced_rows != rows:
-        keep = slice(own[0] * width, own[1] * width)
-        n_traced = alpha.size
+    if own is not None:
+        raw, g, hits, negative, shaded, alpha, beta = _own_rows(
+            own, scene["image.width"], raw, g, hits, negative, shaded, alpha, beta)
+    metadata = _still_metadata(scene, raw, shaded, negative, maps)
+    metadata["trace_seconds"] = traced - started
+    metadata["total_seconds"] = time.perf_counter() - started
+    return _band_result(scene, rows, raw, g, hits, shaded, alpha, beta, metadata)
 
-        def cut(a):
-            return a[keep] if isinstance(a, np.ndarray) and a.ndim and len(a) == n_traced else a
 
-        raw = {name: cut(a) for name, a in raw.items()}
-        g, hits, negative = cut(g), cut(hits), cut(negative)
-        shaded = dataclasses.replace(
-            shaded, intensity=cut(shaded.intensity), pixels=cut(shaded.pixels),
-            products={name: cut(a) for name, a in shaded.products.items()})
-        alpha, beta = alpha[own[0]:own[1]], beta[own[0]:own[1]]
-    intensity, pixels = shaded.intensity, shaded.pixels
+def _band_height(scene, rows):
+    return scene["image.height"] if rows is None else rows[1] - rows[0]
 
-    def image(a):
-        return a.reshape((height, width) + a.shape[1:])
 
-    def stack(a):
-        if a.strides == (0, 0):   # a map the closed form skipped: all NaN, no memory
-            return np.broadcast_to(np.nan, (orders, height, width))
-        return np.ascontiguousarray(np.moveaxis(a, 1, 0).reshape(orders, height, width))
+def _halo_free_progress(progress, traced_rays, own_rays, has_halo):
+    """The progress callback of a band's tracing, counting its own rays only."""
+    if progress is None or not has_halo:
+        return progress
 
-    fate = image(raw["fate"])
-    counts = {name: int(np.count_nonzero(fate == code)) for code, name in FATE_NAMES.items()}
+    def band_progress(done, total):   # the halo's rays are not counted twice
+        progress(done * own_rays // traced_rays, own_rays)
+
+    return band_progress
+
+
+def _own_rows(own, width, raw, g, hits, negative, shaded, alpha, beta):
+    """The band's own rows ``own = (start, stop)`` of arrays traced with a halo."""
+    keep = slice(own[0] * width, own[1] * width)
+    n_traced = alpha.size
+
+    def cut(a):
+        return a[keep] if isinstance(a, np.ndarray) and a.ndim and len(a) == n_traced else a
+
+    raw = {name: cut(a) for name, a in raw.items()}
+    shaded = dataclasses.replace(
+        shaded, intensity=cut(shaded.intensity), pixels=cut(shaded.pixels),
+        products={name: cut(a) for name, a in shaded.products.items()})
+    return (raw, cut(g), cut(hits), cut(negative), shaded, alpha[own[0]:own[1]],
+            beta[own[0]:own[1]])
+
+
+def _still_metadata(scene, raw, shaded, negative, maps):
+    """A band's metadata: scene, conventions, fate counts and the observing info.
+
+    The caller adds the timings (``trace_seconds``, ``total_seconds``).
+    """
+    spin = scene.spin
+    method = scene.trace_settings().method
+    counts = {name: int(np.count_nonzero(raw["fate"] == code))
+              for code, name in FATE_NAMES.items()}
     r_plus, _ = horizon_radii(spin)
-    metadata = {
+    return {
         "program": "nullray", "version": __version__,
         "scene": scene.document, "scene_source": scene.source,
         "units": "geometric, G = c = M = 1: lengths and times in M, angles in rad",
@@ -131,8 +143,8 @@ def _render_band(scene, observation, rows, progress, maps=True):
             "delay": "(t_obs - t_em) - (r*_obs - r*_em), dr*/dr = (r^2+a^2)/Delta",
             "exposure": "display = x/(1+x), x = exposure * I / I_em(r_in); then sRGB",
         },
-        "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": r_in,
-        "outer_radius": r_out, "fate_counts": counts,
+        "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": scene.inner_radius,
+        "outer_radius": scene["disk.outer_radius"], "fate_counts": counts,
         # Photons of negative conserved energy (a camera inside the ergoregion).
         "negative_energy_rays": int(np.count_nonzero(negative)),
         "tracing_method": method,
@@ -140,12 +152,27 @@ def _render_band(scene, observation, rows, progress, maps=True):
         "phi_delay_maps": bool(maps or method == "integrate"),
         "steps_mean": float(raw["steps"].mean()),
         "observing": shaded.info,
-        "trace_seconds": traced - started, "total_seconds": time.perf_counter() - started,
     }
+
+
+def _band_result(scene, rows, raw, g, hits, shaded, alpha, beta, metadata):
+    """The band's flat per-ray arrays shaped as images (H, W) and per-order maps (orders, H, W)."""
+    orders = scene["disk.orders"]
+    height, width = _band_height(scene, rows), scene["image.width"]
+
+    def image(a):
+        return a.reshape((height, width) + a.shape[1:])
+
+    def stack(a):
+        if a.strides == (0, 0):   # a map the closed form skipped: all NaN, no memory
+            return np.broadcast_to(np.nan, (orders, height, width))
+        return np.ascontiguousarray(np.moveaxis(a, 1, 0).reshape(orders, height, width))
+
     return StillResult(
-        intensity=image(intensity), pixels=image(pixels), fate=fate, alpha=alpha, beta=beta,
-        r=stack(raw["r"]), phi=stack(raw["phi"]), g=stack(g), delay=stack(raw["delay"]),
-        on_disk=stack(hits), steps=image(raw["steps"]), metadata=metadata,
+        intensity=image(shaded.intensity), pixels=image(shaded.pixels), fate=image(raw["fate"]),
+        alpha=alpha, beta=beta, r=stack(raw["r"]), phi=stack(raw["phi"]), g=stack(g),
+        delay=stack(raw["delay"]), on_disk=stack(hits), steps=image(raw["steps"]),
+        metadata=metadata,
         products={k: stack(v) if k in PER_ORDER_PRODUCTS else image(v)
                   for k, v in shaded.products.items()},
         tables=shaded.tables)

@@ -242,6 +242,31 @@ def _merge_info(total, part):
     return total
 
 
+def _check_temporary_space(store, plan):
+    """Refuse a tiled still whose temporary files would not fit the store's disk."""
+    free = shutil.disk_usage(store.folder).free
+    if plan.whole_bytes / 2 > free:
+        raise _scene_error(
+            f"image.width x image.height = {plan.width} x {plan.height} needs about "
+            f"{plan.whole_bytes / 2e9:.3g} GB of temporary files in {store.folder.parent}, "
+            f"which has {free / 1e9:.3g} GB free")
+
+
+def _store_band(store, part, rows, height, skipped):
+    """Write a band's maps and products to ``store``; note all-NaN maps in ``skipped``."""
+    if part.tables:
+        raise ValueError("tables cannot be assembled from tiles")
+    for name in PIXEL_FIELDS + PER_ORDER_FIELDS:
+        array = getattr(part, name)
+        if array.size and not any(array.strides):
+            # An all-NaN view (a map the closed form skipped): nothing to store.
+            skipped[name] = array.shape[0]
+            continue
+        store.write_band(name, array, rows, height)
+    for name, array in part.products.items():
+        store.write_band(f"product.{name}", array, rows, height)
+
+
 def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
     """Render ``scene`` band by band with ``render_band(rows, progress)``; return a StillResult.
 
@@ -258,12 +283,7 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
     store.per_order = frozenset(PER_ORDER_FIELDS) | {f"product.{n}" for n in PER_ORDER_PRODUCTS}
     total_rays = plan.width * plan.height
     try:
-        free = shutil.disk_usage(store.folder).free
-        if plan.whole_bytes / 2 > free:
-            raise _scene_error(
-                f"image.width x image.height = {plan.width} x {plan.height} needs about "
-                f"{plan.whole_bytes / 2e9:.3g} GB of temporary files in {store.folder.parent}, "
-                f"which has {free / 1e9:.3g} GB free")
+        _check_temporary_space(store, plan)
         metadata = None
         info = None
         counts = {}
@@ -280,17 +300,7 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
                     progress(_offset + done, total_rays)
 
             part = render_band(rows, band_progress)
-            if part.tables:
-                raise ValueError("tables cannot be assembled from tiles")
-            for name in PIXEL_FIELDS + PER_ORDER_FIELDS:
-                array = getattr(part, name)
-                if array.size and not any(array.strides):
-                    # An all-NaN view (a map the closed form skipped): nothing to store.
-                    skipped[name] = array.shape[0]
-                    continue
-                store.write_band(name, array, rows, plan.height)
-            for name, array in part.products.items():
-                store.write_band(f"product.{name}", array, rows, plan.height)
+            _store_band(store, part, rows, plan.height, skipped)
             if product_names is None:
                 product_names = list(part.products)
             meta = part.metadata

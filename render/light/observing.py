@@ -29,7 +29,6 @@ at the emission angle in the emitter's frame (:func:`render.light.emission.emiss
 """
 
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 
@@ -38,7 +37,7 @@ from .color import (automatic_reference_luminance, desaturate_into_gamut, expose
 from .emission import (EmissionTableError, NovikovThorne, PowerLaw, RadialProfile,
                        emission_cosine, limb_darkening, observed_bolometric)
 
-__all__ = ["MODES", "Observation", "Shaded", "prepare_observation", "shade",
+__all__ = ["MODES", "Observation", "Shaded", "prepare_observation", "shade", "exposure_white",
            "check_observing", "observing_frequency_hz", "pixel_angle_rad"]
 
 MODES = ("bolometric", "monochromatic", "true_colour", "spectrum", "line")
@@ -109,22 +108,20 @@ def pixel_angle_rad(scene):
 
 @dataclass
 class Observation:
-    """What a scene asks to measure, prepared before tracing (law built, tables read)."""
+    """What a scene asks to measure, prepared before tracing (law built, tables read).
+
+    ``colour_reference`` is the luminance Y shown as white in ``true_colour`` with
+    ``observing.colour_exposure: fixed`` (None otherwise).
+    """
 
     mode: str
     law: object
     limb: str
     frequency_hz: float = None
+    colour_reference: float = None
     accretion_rate_g_s: float = None
     efficiency: float = None
     info: dict = field(default_factory=dict)
-
-
-def _resolve_profile_path(scene):
-    path = Path(scene["emission.profile"])
-    if not path.is_absolute() and scene.source not in ("<defaults>", "<dict>"):
-        path = Path(scene.source).parent / path
-    return path
 
 
 def prepare_observation(scene):
@@ -139,7 +136,7 @@ def prepare_observation(scene):
     if name == "power_law":
         obs.law = PowerLaw(index=scene["emission.index"])
     elif name == "profile":
-        path = _resolve_profile_path(scene)
+        path = scene.side_file("emission.profile")
         try:
             obs.law = RadialProfile.from_csv(path)
         except EmissionTableError as exc:
@@ -161,8 +158,55 @@ def prepare_observation(scene):
     if obs.mode == "monochromatic":
         obs.frequency_hz = observing_frequency_hz(scene)
         info["frequency_hz"] = obs.frequency_hz
+    if obs.mode == "true_colour" and scene["observing.colour_exposure"] == "fixed":
+        obs.colour_reference = float(scene["observing.colour_reference"])
     obs.info = info
     return obs
+
+
+def exposure_white(observation, r_in, r_out):
+    """The intensity the fixed exposure rule shows as white, I_white.
+
+    The rule (README, "Exposure") is display = x / (1 + x) with
+    x = exposure * I_obs / I_white, and I_white never comes from the image:
+
+    * ``true_colour``: the luminance reference ``observing.colour_reference`` when
+      ``observing.colour_exposure`` is ``fixed``; None when it is ``auto`` (then
+      the white is the image's own, set when it is shaded);
+    * ``monochromatic``: the peak rest-frame specific intensity over the disk at the
+      observed frequency (1 if the disk is dark there);
+    * every other mode: the emission law's reference intensity
+      (:meth:`reference_intensity`: the inner edge's intensity for ``power_law``,
+      the peak over the disk for the other laws).
+
+    Parameters
+    ----------
+    observation : Observation
+        The prepared observation (:func:`prepare_observation`).
+    r_in, r_out : float
+        The disk's inner and outer edges in M.
+
+    Returns
+    -------
+    float or None
+
+    References
+    ----------
+    Reinhard, Stark, Shirley & Ferwerda (2002), ACM Trans. Graph. 21, 267, eq. 3
+    (the curve x / (1 + x) the white scales).
+
+    Examples
+    --------
+    >>> exposure_white(Observation("bolometric", PowerLaw(index=3.0), "none"), 2.0, 20.0)
+    0.125
+    """
+    if observation.mode == "true_colour":
+        return observation.colour_reference
+    law = observation.law
+    if observation.mode == "monochromatic":
+        radii = np.geomspace(r_in, r_out, 2000)
+        return float(np.max(law.specific_intensity(observation.frequency_hz, radii))) or 1.0
+    return float(law.reference_intensity(r_in, r_out))
 
 
 @dataclass
@@ -232,24 +276,23 @@ def shade(obs, scene, raw, g, hits, bundle):
         products["emission_cosine"] = np.where(hits, mu, np.nan)
     tables = {}
     exposure = scene["output.exposure"]
-    white = law.reference_intensity(r_in, r_out)
+    white = exposure_white(obs, r_in, r_out)
     intensity = bolometric
     if obs.mode == "monochromatic":
         from .emission import observed_specific_intensity
 
         intensity = _summed(observed_specific_intensity(obs.frequency_hz, g, r, law) * weight,
                             hits)
-        radii = np.geomspace(r_in, r_out, 2000)
-        white = float(np.max(law.specific_intensity(obs.frequency_hz, radii))) or 1.0
         products["specific_intensity"] = intensity
         products["bolometric_intensity"] = bolometric
         info["units"] = "intensity: erg s^-1 cm^-2 Hz^-1 sr^-1"
         _add_flux(scene, intensity, products, info)
-    pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
     if obs.mode == "true_colour":
         pixels, colour_products, colour_info = _true_colour(obs, scene, r, g, weight, hits)
         products.update(colour_products)
         info.update(colour_info)
+    else:
+        pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
     if obs.mode in ("spectrum", "line"):
         # These modes always see the whole image (they are never tiled): a disk
         # that reaches the border is cropped, and the totals miss what lies outside.
@@ -304,9 +347,8 @@ def colour_xyz(law, r, g, weight):
 
 def _true_colour(obs, scene, r, g, weight, hits):
     xyz = colour_xyz(obs.law, r, np.where(hits, g, np.nan), weight)
-    if scene["observing.colour_exposure"] == "fixed":
-        reference = float(scene["observing.colour_reference"])
-    else:
+    reference = exposure_white(obs, scene.inner_radius, scene["disk.outer_radius"])
+    if reference is None:   # the automatic exposure: the image's own white
         reference = automatic_reference_luminance(xyz[:, 1])
     rgb = desaturate_into_gamut(xyz_to_linear_srgb(xyz))
     encoded = srgb_encode(expose_linear_srgb(rgb, reference, scene["output.exposure"]))

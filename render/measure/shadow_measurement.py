@@ -368,8 +368,21 @@ def photon_ring_edges(spin, inclination_deg, inner_radius, outer_radius, orders=
     Phys. Rev. D 101, 044031.
     """
     orders = [int(n) for n in orders]
+    trace = _cut_tracer(spin, inclination_deg, direction_deg, max(orders) + 1, tolerance)
+    rho_c = _capture_boundary_along_cut(trace, far, bisection_tolerance)
+    edges = {"critical": rho_c}
+    targets = []
+    for n in orders:
+        targets += [(n, inner_radius), (n, outer_radius)]
+    middle = _crossing_edges_along_cut(trace, targets, rho_c, far, bisection_tolerance)
+    for k, n in enumerate(orders):
+        edges[n] = (float(middle[2 * k]), float(middle[2 * k + 1]))
+    return edges
+
+
+def _cut_tracer(spin, inclination_deg, direction_deg, depth, tolerance):
+    """``trace(rho)``: the distant observer's rays at distances rho along one image-plane cut."""
     cos_phi, sin_phi = math.cos(math.radians(direction_deg)), math.sin(math.radians(direction_deg))
-    depth = max(orders) + 1
 
     def trace(rho):
         rho = np.asarray(rho, dtype=float)
@@ -377,6 +390,11 @@ def photon_ring_edges(spin, inclination_deg, inner_radius, outer_radius, orders=
                             inclination_deg=inclination_deg, max_orders=depth,
                             tolerance=tolerance)
 
+    return trace
+
+
+def _capture_boundary_along_cut(trace, far, bisection_tolerance):
+    """The cut's capture boundary rho_c, by bisection between 0 (captured) and ``far``."""
     lo, hi = np.array([0.0]), np.array([far])
     if trace(lo)["fate"][0] != "captured" or trace(hi)["fate"][0] == "captured":
         raise MeasureError("the cut must start inside the shadow and end outside it")
@@ -384,11 +402,29 @@ def photon_ring_edges(spin, inclination_deg, inner_radius, outer_radius, orders=
         mid = 0.5 * (lo + hi)
         captured = trace(mid)["fate"][0] == "captured"
         lo, hi = (mid, hi) if captured else (lo, mid)
-    rho_c = float(hi[0])  # the escaping side: rays wind many times here
-    edges = {"critical": rho_c}
-    targets = []
-    for n in orders:
-        targets += [(n, inner_radius), (n, outer_radius)]
+    return float(hi[0])  # the escaping side: rays wind many times here
+
+
+def _crossing_edges_along_cut(trace, targets, rho_c, far, bisection_tolerance):
+    """Where the n-th crossing radius r_n(rho) passes each target radius, all bisected at once.
+
+    Parameters
+    ----------
+    trace : callable
+        :func:`_cut_tracer`'s ``trace(rho)``.
+    targets : list of (int, float)
+        Pairs (order n, radius in M).
+    rho_c, far : float
+        The bracket: the capture boundary (r_n near the photon orbits, below
+        every target) and a distance where r_n is beyond every target or gone.
+    bisection_tolerance : float
+        Final bracket width in M.
+
+    Returns
+    -------
+    ndarray
+        The crossing distance rho of each target, in order.
+    """
     lo = np.full(len(targets), rho_c)
     hi = np.full(len(targets), far)
     column = np.array([n for n, _ in targets])
@@ -405,10 +441,7 @@ def photon_ring_edges(spin, inclination_deg, inner_radius, outer_radius, orders=
         out = beyond(mid)
         lo = np.where(out, lo, mid)
         hi = np.where(out, mid, hi)
-    middle = 0.5 * (lo + hi)
-    for k, n in enumerate(orders):
-        edges[n] = (float(middle[2 * k]), float(middle[2 * k + 1]))
-    return edges
+    return 0.5 * (lo + hi)
 
 
 def measure_paths(scene, folder):
@@ -495,74 +528,25 @@ def measure_scene(scene, tolerances=None, result=None):
         The field of view does not contain the whole shadow, or nothing is captured.
     """
     from ..imaging.still import render_still
-    from ..units import angular_gravitational_radius_uas
 
     tolerances = _tolerances(scene, tolerances)
     analytic, curve, distance = _analytic(scene)
     check_field_of_view(scene, curve)
     if result is None:
         result = render_still(scene, maps=False)   # the fates are all it needs
-    width, height = scene["image.width"], scene["image.height"]
-    h = scene["observer.field_of_view"] / width
-    captured = result.fate == FATE_CAPTURED
-    if not np.any(captured):
-        raise MeasureError("no captured pixels in the image: the shadow is smaller than a pixel "
-                           "or hidden; raise image.width or narrow observer.field_of_view")
-    border = np.concatenate([captured[0], captured[-1], captured[:, 0], captured[:, -1]])
-    if np.any(border):
-        raise MeasureError("the field of view does not contain the whole shadow (captured "
-                           "pixels touch the image's edge); widen observer.field_of_view")
+    h = scene["observer.field_of_view"] / scene["image.width"]
+    captured = _captured_pixels(result)
     centre = (float(result.alpha[captured].mean()), float(result.beta[captured].mean()))
-    trace = fate_tracer(scene)
     n_directions = scene["measure.directions"]
-    phi = 2.0 * np.pi * np.arange(n_directions) / n_directions
-    outer = _distance_to_frame(centre, phi, 0.5 * width * h, 0.5 * height * h,
-                               scene["observer.roll"])
-    phi, rho = shadow_boundary(trace, centre, n_directions, outer)
-    measured, boundary = boundary_moments(centre, phi, rho)
-
-    checks = []
-    for quantity in ("area", "radius", "centroid_alpha", "centroid_beta", "alpha_min",
-                     "alpha_max", "beta_max", "asymmetry"):
-        unit, _, kind = QUANTITIES[quantity]
-        checks.append(Check(quantity, unit, measured[quantity], analytic[quantity],
-                            tolerances[quantity], kind))
+    measured, boundary = _measured_shadow(scene, centre, n_directions, h)
+    checks = _shadow_checks(measured, analytic, tolerances)
     transparent = scene["disk.surface"] == "transparent"
     mask = None
     if transparent:
-        mask_area, bound = pixel_mask_area(captured, h, analytic["perimeter"])
-        mask = {"area": mask_area, "quantisation_bound": bound,
-                "pixels": int(np.count_nonzero(captured))}
-        checks.append(Check("pixel_area", "M^2", mask_area, analytic["area"],
-                            tolerances.get("pixel_area", bound), "absolute"))
-
-    total = image_moments(result.intensity, result.alpha, result.beta, h)
-    per_order = _per_order_intensity(result, scene)
-    orders = {str(n): image_moments(per_order[n], result.alpha, result.beta, h)
-              for n in range(per_order.shape[0])}
+        mask, check = _pixel_mask_check(captured, h, analytic, tolerances)
+        checks.append(check)
     rings = ring_profiles(result.on_disk, result.alpha, result.beta, centre, h) \
         if transparent else {}
-    uas = angular_gravitational_radius_uas(scene["black_hole.mass"], scene["black_hole.distance"])
-    physical = {
-        "uas_per_M": uas,
-        "shadow_diameter_uas": {"measured": 2.0 * measured["radius"] * uas,
-                                "analytic": 2.0 * analytic["radius"] * uas},
-        "shadow_width_uas": {"measured": measured["width"] * uas,
-                             "analytic": analytic["width"] * uas},
-        "shadow_height_uas": {"measured": measured["height"] * uas,
-                              "analytic": analytic["height"] * uas},
-        "ring_diameters_uas": {str(n): ring["diameter"] * uas for n, ring in rings.items()},
-    }
-    notes = []
-    if distance is not None:
-        distant = shadow_moments(scene.spin, scene["observer.inclination"])
-        notes.append(
-            f"analytic curve exact in the camera's {scene['observer.frame']} frame at "
-            f"r = {distance:g} M; the distant-observer approximation would differ in area by "
-            f"{distant['area'] / analytic['area'] - 1.0:+.3e} (relative)")
-    if not transparent:
-        notes.append("opaque disk: the pixel-mask area and the ring sizes are not measured "
-                     "(the disk hides part of the shadow and the higher orders)")
     report = {
         "program": "nullray", "version": result.metadata.get("version"),
         "scene": scene.document, "scene_source": scene.source,
@@ -576,12 +560,96 @@ def measure_scene(scene, tolerances=None, result=None):
                    "directions": int(n_directions), "bisection_tolerance": BOUNDARY_TOLERANCE,
                    "pixel_mask": mask},
         "rings": {str(n): ring for n, ring in rings.items()},
-        "image_moments": {"total": total, "orders": orders},
-        "physical": physical,
-        "notes": notes,
+        "image_moments": _image_moments_by_order(result, scene, h),
+        "physical": _physical_sizes(scene, measured, analytic, rings),
+        "notes": _notes(scene, analytic, distance, transparent),
     }
     return Measurement(checks=checks, report=report, result=result, boundary=boundary,
                        curve=curve)
+
+
+def _captured_pixels(result):
+    """The captured pixels (H, W); refused if there are none or they touch the edge."""
+    captured = result.fate == FATE_CAPTURED
+    if not np.any(captured):
+        raise MeasureError("no captured pixels in the image: the shadow is smaller than a pixel "
+                           "or hidden; raise image.width or narrow observer.field_of_view")
+    border = np.concatenate([captured[0], captured[-1], captured[:, 0], captured[:, -1]])
+    if np.any(border):
+        raise MeasureError("the field of view does not contain the whole shadow (captured "
+                           "pixels touch the image's edge); widen observer.field_of_view")
+    return captured
+
+
+def _measured_shadow(scene, centre, n_directions, h):
+    """(moments, boundary) of the shadow edge bisected along rays from ``centre``."""
+    width, height = scene["image.width"], scene["image.height"]
+    phi = 2.0 * np.pi * np.arange(n_directions) / n_directions
+    outer = _distance_to_frame(centre, phi, 0.5 * width * h, 0.5 * height * h,
+                               scene["observer.roll"])
+    phi, rho = shadow_boundary(fate_tracer(scene), centre, n_directions, outer)
+    return boundary_moments(centre, phi, rho)
+
+
+def _shadow_checks(measured, analytic, tolerances):
+    """One :class:`Check` per compared shadow quantity."""
+    checks = []
+    for quantity in ("area", "radius", "centroid_alpha", "centroid_beta", "alpha_min",
+                     "alpha_max", "beta_max", "asymmetry"):
+        unit, _, kind = QUANTITIES[quantity]
+        checks.append(Check(quantity, unit, measured[quantity], analytic[quantity],
+                            tolerances[quantity], kind))
+    return checks
+
+
+def _pixel_mask_check(captured, h, analytic, tolerances):
+    """(report entry, Check) of the captured pixels' area against the analytic area."""
+    mask_area, bound = pixel_mask_area(captured, h, analytic["perimeter"])
+    mask = {"area": mask_area, "quantisation_bound": bound,
+            "pixels": int(np.count_nonzero(captured))}
+    return mask, Check("pixel_area", "M^2", mask_area, analytic["area"],
+                       tolerances.get("pixel_area", bound), "absolute")
+
+
+def _image_moments_by_order(result, scene, h):
+    """Intensity moments of the whole image and of each order's image alone."""
+    total = image_moments(result.intensity, result.alpha, result.beta, h)
+    per_order = _per_order_intensity(result, scene)
+    orders = {str(n): image_moments(per_order[n], result.alpha, result.beta, h)
+              for n in range(per_order.shape[0])}
+    return {"total": total, "orders": orders}
+
+
+def _physical_sizes(scene, measured, analytic, rings):
+    """Shadow and ring sizes in microarcseconds, for the scene's mass and distance."""
+    from ..units import angular_gravitational_radius_uas
+
+    uas = angular_gravitational_radius_uas(scene["black_hole.mass"], scene["black_hole.distance"])
+    return {
+        "uas_per_M": uas,
+        "shadow_diameter_uas": {"measured": 2.0 * measured["radius"] * uas,
+                                "analytic": 2.0 * analytic["radius"] * uas},
+        "shadow_width_uas": {"measured": measured["width"] * uas,
+                             "analytic": analytic["width"] * uas},
+        "shadow_height_uas": {"measured": measured["height"] * uas,
+                              "analytic": analytic["height"] * uas},
+        "ring_diameters_uas": {str(n): ring["diameter"] * uas for n, ring in rings.items()},
+    }
+
+
+def _notes(scene, analytic, distance, transparent):
+    """What the reader of a measurement should know about how it was made."""
+    notes = []
+    if distance is not None:
+        distant = shadow_moments(scene.spin, scene["observer.inclination"])
+        notes.append(
+            f"analytic curve exact in the camera's {scene['observer.frame']} frame at "
+            f"r = {distance:g} M; the distant-observer approximation would differ in area by "
+            f"{distant['area'] / analytic['area'] - 1.0:+.3e} (relative)")
+    if not transparent:
+        notes.append("opaque disk: the pixel-mask area and the ring sizes are not measured "
+                     "(the disk hides part of the shadow and the higher orders)")
+    return notes
 
 
 def _fmt(value):

@@ -65,6 +65,36 @@ class Scene:
         value = self.values["disk.inner_radius"]
         return isco_radius(self.spin) if value == "isco" else float(value)
 
+    def side_file(self, key):
+        """The file a path-valued key names, resolved; None when the key is unset.
+
+        A relative path is taken from the scene file's folder, so a scene and its
+        side files (an emission profile, a sky panorama) move together; a scene
+        not read from a file takes it from the current folder.
+
+        Parameters
+        ----------
+        key : str
+            A dotted key of kind path, e.g. ``"emission.profile"`` or ``"sky.image"``.
+
+        Returns
+        -------
+        pathlib.Path or None
+
+        Examples
+        --------
+        >>> scene = scene_from_dict({"sky": {"image": "pano.png"}}, source="scenes/night.yaml")
+        >>> scene.side_file("sky.image").as_posix(), scene.side_file("emission.profile")
+        ('scenes/pano.png', None)
+        """
+        name = self.values[key]
+        if name is None:
+            return None
+        path = Path(name)
+        if not path.is_absolute() and self.source not in ("<defaults>", "<dict>"):
+            path = Path(self.source).parent / path
+        return path
+
     def viewpoint(self):
         """The observer set-up of this scene (:class:`render.camera.observers.Viewpoint`)."""
         v = self.values
