@@ -16,7 +16,9 @@ from PIL import Image
 from conftest import run_cli
 from render import default_scene, render_still
 from render.api import render_sequence
-from render.film.sequence import interpolate, plan_sequence, render_frame
+from render.film.frame import render_frame
+from render.film.keyframes import interpolate
+from render.film.sequence import plan_sequence
 from render.light.pattern import emission_time, tortoise_radius
 from render.errors import SceneError
 

@@ -9,7 +9,8 @@ from PIL import Image
 
 from render import default_scene
 from render.api import render_sequence
-from render.output.video import FLASH_AREA_FRACTION, contact_sheet, flash_check, relative_luminance
+from render.film.flash import FLASH_AREA_FRACTION, flash_check, relative_luminance
+from render.output.video import contact_sheet
 
 
 @pytest.fixture(scope="module")
