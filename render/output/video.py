@@ -5,10 +5,11 @@ file atomically; which files a sequence gets is :mod:`render.film.products`.
 """
 
 import io
-import os
 from pathlib import Path
 
 import numpy as np
+
+from .files import atomic_path, atomic_write
 
 __all__ = ["write_video", "write_gif", "contact_sheet", "write_light_curve_png",
            "FRAME_PATTERN"]
@@ -30,35 +31,29 @@ def _even(pixels):
     return np.pad(pixels, ((0, h % 2), (0, w % 2), (0, 0)), mode="edge")
 
 
-def _temporary(path):
-    return path.with_name(f".{path.stem}.{os.getpid()}.part{path.suffix}")
-
-
 def write_video(path, frames, fps):
-    """Write RGB frames as H.264 MP4 (imageio with imageio-ffmpeg's ffmpeg), atomically."""
-    import imageio.v2 as imageio
+    """Write RGB frames as H.264 MP4 (imageio with imageio-ffmpeg's ffmpeg), atomically.
 
-    path = Path(path)
-    tmp = _temporary(path)
-    try:
-        writer = imageio.get_writer(tmp, format="FFMPEG", mode="I", fps=fps, codec="libx264",
-                                    macro_block_size=1, pixelformat="yuv420p",
-                                    ffmpeg_log_level="error", quality=8)
+    ffmpeg writes to the temporary of :func:`render.output.files.atomic_path`,
+    whose ``.part`` name says nothing of the container, so both imageio and
+    ffmpeg are told it is MP4.
+    """
+    import imageio.v3 as iio
+
+    with atomic_path(path, overwrite=True) as tmp:
+        plugin = iio.imopen(tmp, "wI", plugin="FFMPEG", extension=".mp4", legacy_mode=True)
+        writer = plugin.legacy_get_writer(fps=fps, codec="libx264", macro_block_size=1,
+                                          pixelformat="yuv420p", ffmpeg_log_level="error",
+                                          quality=8, output_params=["-f", "mp4"])
         with writer:
             for frame in frames:
                 writer.append_data(_even(_rgb(frame)))
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-    return path
+    return Path(path)
 
 
 def write_gif(path, frames, fps):
     """Write an animated GIF (Pillow, looping), atomically."""
     from PIL import Image
-
-    from .files import atomic_write
 
     images = [Image.fromarray(_rgb(f)) for f in frames]
     duration = max(20, int(round(1000.0 / fps)))
@@ -101,8 +96,6 @@ def write_light_curve_png(path, clocks, fluxes, unit):
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
-
-    from .files import atomic_write
 
     figure, axes = plt.subplots(figsize=(6, 3.2), dpi=100)
     axes.plot(clocks, fluxes, marker=".", lw=1)
