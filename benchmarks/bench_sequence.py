@@ -59,7 +59,8 @@ def main():
 
     from render import load_scene
     from render.api import render_sequence
-    from render.film.sequence import plan_sequence, render_frame
+    from render.film.frame import render_frame
+    from render.film.sequence import plan_sequence
 
     scene = load_scene(REPO / "scenes" / "orbit-kestrel.yaml",
                        [f"animation.frames={args.frames}"])

@@ -1,6 +1,6 @@
 """Spreading frames over processes: a local pool or a Dask distributed cluster.
 
-The unit of work is one frame (:class:`render.film.sequence.FrameJob`), or one band
+The unit of work is one frame (:class:`render.film.frame.FrameJob`), or one band
 of rows of a large still (:func:`render_still_on_cluster`).  Workers return the
 frame's pixels or the band's arrays; the client writes them, in order, so the
 files look the same whichever backend rendered them.
@@ -115,7 +115,7 @@ def _accepts_n_workers(client):
 def _dask_task(job, threads):
     from dask.distributed import get_worker
 
-    from .film.sequence import render_frame
+    from .film.frame import render_frame
 
     return render_frame(job, numba_threads=threads.get(get_worker().address, 1))
 
@@ -148,7 +148,7 @@ def _caused_by_interrupt(exc):
 
 
 def frame_results(jobs, workers=1, client=None, worker_wait=WORKER_WAIT_S):
-    """Yield :class:`~render.film.sequence.FrameResult` for ``jobs``, in their order.
+    """Yield :class:`~render.film.frame.FrameResult` for ``jobs``, in their order.
 
     Parameters
     ----------
@@ -160,7 +160,7 @@ def frame_results(jobs, workers=1, client=None, worker_wait=WORKER_WAIT_S):
     worker_wait : float
         Seconds the cluster may have no worker before :class:`WorkerLostError`.
     """
-    from .film.sequence import render_frame
+    from .film.frame import render_frame
 
     jobs = list(jobs)
     if not jobs:

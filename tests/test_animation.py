@@ -13,10 +13,14 @@ import pytest
 import yaml
 from PIL import Image
 
+import render.geodesics.closed_form
+import render.geodesics.tracing
 from conftest import run_cli
 from render import default_scene, render_still
 from render.api import render_sequence
-from render.film.sequence import interpolate, plan_sequence, render_frame
+from render.film.frame import render_frame
+from render.film.keyframes import interpolate
+from render.film.sequence import plan_sequence
 from render.light.pattern import emission_time, tortoise_radius
 from render.errors import SceneError
 
@@ -335,3 +339,88 @@ def test_one_white_for_a_sweep_is_the_largest_frame_white():
     plan = plan_sequence(scene)
     assert {job.white for job in plan.jobs} == {plan.white}
     assert plan.white == pytest.approx(isco_radius(0.9) ** -3, rel=1e-12)
+
+
+# --- sequences honour tracing.method --------------------------------------------------------
+
+def _method_film(method):
+    # An invented sweep: a distant observer at rest, 3 frames of 16x16, its inclination
+    # keyframed from 35 to 65 degrees, traced as tracing.method says.
+    return small(**{"name": f"film-{method}", "image.width": 16, "image.height": 16,
+                    "black_hole.spin": 0.6, "observer.field_of_view": 28.0,
+                    "tracing.method": method, "animation.frames": 3,
+                    "animation.camera_path": "still", "animation.keyframes": [
+                        {"frame": 0, "observer.inclination": 35.0, "interpolation": "linear"},
+                        {"frame": 2, "observer.inclination": 65.0}]})
+
+
+def _refuse(monkeypatch, module, name):
+    def refuse(*args, **kwargs):
+        raise AssertionError(f"{name} ran although the film asked for the other method")
+
+    monkeypatch.setattr(module, name, refuse)
+
+
+def _count_calls(monkeypatch, module, name):
+    calls = []
+    original = getattr(module, name)
+
+    def counted(*args, **kwargs):
+        calls.append(name)
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(module, name, counted)
+    return calls
+
+
+def _frames_of(result):
+    return [np.asarray(Image.open(result.folder / f"frame_{k:05d}.png"), dtype=int)
+            for k in range(3)]
+
+
+@pytest.mark.parametrize("method", ["closed-form", "auto"])
+def test_a_distant_film_asked_for_the_closed_form_never_integrates(tmp_path, monkeypatch, method):
+    # auto means the closed form for a distant observer (README, tracing.method).
+    _refuse(monkeypatch, render.geodesics.tracing, "trace_rays")
+    closed_form = _count_calls(monkeypatch, render.geodesics.closed_form, "closed_form_crossings")
+    result = render_sequence(_method_film(method), tmp_path, products=False)
+    assert result.rendered == [0, 1, 2]
+    # Every frame has its own inclination, so none can reuse another's rays.
+    assert len(closed_form) >= 3
+    assert all(frame.max() > 0 for frame in _frames_of(result))
+
+
+def test_a_film_asked_to_integrate_never_uses_the_closed_form(tmp_path, monkeypatch):
+    _refuse(monkeypatch, render.geodesics.closed_form, "closed_form_crossings")
+    integrator = _count_calls(monkeypatch, render.geodesics.tracing, "trace_rays")
+    result = render_sequence(_method_film("integrate"), tmp_path, products=False)
+    assert result.rendered == [0, 1, 2]
+    assert len(integrator) >= 3
+
+
+def test_closed_form_and_integrated_films_agree_to_one_level(tmp_path):
+    # The two methods agree to ~1e-8 relative in r and g away from the critical curve
+    # (docs/closed_form.md, checked in tests/test_closed_form.py); a relative change of 1e-8
+    # in a pixel's intensity can move its 8-bit value across at most one rounding boundary.
+    closed = _frames_of(render_sequence(_method_film("closed-form"), tmp_path, products=False))
+    integrated = _frames_of(render_sequence(_method_film("integrate"), tmp_path, products=False))
+    for a, b in zip(closed, integrated):
+        assert np.max(np.abs(a - b)) <= 1
+    # The frames do differ from one another (the sweep is seen), so the match is not trivial.
+    assert np.max(np.abs(closed[0] - closed[2])) > 10
+
+
+def test_the_frame_trace_cache_keeps_the_methods_apart(monkeypatch):
+    # A frame whose geometry equals the last frame's reuses its rays (render.film.frame);
+    # the same view traced by another method must be traced again.
+    closed_job = plan_sequence(_method_film("closed-form")).jobs[2]
+    integrated_job = plan_sequence(_method_film("integrate")).jobs[2]
+    render_frame(closed_job)
+    _refuse(monkeypatch, render.geodesics.closed_form, "closed_form_crossings")
+    integrator = _count_calls(monkeypatch, render.geodesics.tracing, "trace_rays")
+    first = render_frame(integrated_job)
+    assert integrator, "the integrated frame reused the closed form's rays"
+    traced = len(integrator)
+    again = render_frame(integrated_job)
+    assert len(integrator) == traced  # same view and method: the cache is used
+    assert np.array_equal(first.pixels, again.pixels)

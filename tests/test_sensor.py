@@ -263,7 +263,8 @@ def test_python_api_refuses_a_bad_panorama_before_tracing(tmp_path, no_tracing):
 def test_a_sequence_frame_of_a_resting_camera_matches_the_still():
     # Sequences use the same sensor (sky, supersampling), seen from the camera's frame at the
     # frame's time: for a camera at rest the frame must be the still, pixel for pixel.
-    from render.film.sequence import plan_sequence, render_frame
+    from render.film.frame import render_frame
+    from render.film.sequence import plan_sequence
 
     scene = default_scene(**{"image.width": 40, "image.height": 24, "animation.frames": 1,
                              "observer.field_of_view": 200.0, "sky.kind": "stars",

@@ -9,7 +9,8 @@ from PIL import Image
 
 from render import default_scene
 from render.api import render_sequence
-from render.output.video import FLASH_AREA_FRACTION, contact_sheet, flash_check, relative_luminance
+from render.film.flash import FLASH_AREA_FRACTION, flash_check, relative_luminance
+from render.output.video import contact_sheet, write_video
 
 
 @pytest.fixture(scope="module")
@@ -107,3 +108,30 @@ def test_contact_sheet_picks_evenly_spaced_frames():
     frames = [np.full((4, 6), k, dtype=np.uint8) for k in range(100)]
     sheet = contact_sheet(frames, columns=4, max_tiles=8)
     assert sheet.shape == (2 * 6 + 2, 4 * 8 + 2, 3)
+
+
+@pytest.mark.parametrize("previous", [None, b"the previous video"])
+@pytest.mark.parametrize("failure", [RuntimeError("the frame source broke"), KeyboardInterrupt()])
+def test_a_failed_video_write_leaves_no_new_file_and_no_temporary(tmp_path, failure, previous):
+    # common practice (atomic replacement): ffmpeg writes a hidden .NAME.*.part beside the
+    # target, which a failure removes; the final name is neither created nor touched.
+    target = tmp_path / "clip.mp4"
+    if previous is not None:
+        target.write_bytes(previous)
+    seen_while_writing = []
+
+    def frames():
+        yield np.zeros((8, 8, 3), dtype=np.uint8)
+        seen_while_writing.extend(p.name for p in tmp_path.iterdir() if p != target)
+        raise failure
+
+    with pytest.raises(type(failure)):
+        write_video(target, frames(), 12.0)
+    if previous is None:
+        assert list(tmp_path.iterdir()) == []
+    else:
+        assert list(tmp_path.iterdir()) == [target] and target.read_bytes() == previous
+    # While writing, the temporary had the name an interrupted sequence's folder is
+    # cleaned of (render.film.sequence.prepare_folder removes .*.part).
+    assert len(seen_while_writing) == 1
+    assert seen_while_writing[0].startswith(".clip.mp4.") and seen_while_writing[0].endswith(".part")

@@ -9,13 +9,14 @@ never overwritten unless the caller passes ``overwrite=True``.
 import json
 import os
 import tempfile
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import OutputExists, OutputWriteError
 
-__all__ = ["OutputExists", "atomic_write", "write_png", "write_npz", "check_free"]
+__all__ = ["OutputExists", "atomic_path", "atomic_write", "write_png", "write_npz", "check_free"]
 
 
 def check_free(paths, overwrite=False):
@@ -28,21 +29,60 @@ def check_free(paths, overwrite=False):
                                f"another name with --set name=...")
 
 
-def atomic_write(path, write, overwrite=False):
-    """Call ``write(file_object)`` on a temporary file, then rename it to ``path``."""
+@contextmanager
+def atomic_path(path, overwrite=False):
+    """A temporary path beside ``path`` to write; renamed to ``path`` when the block ends cleanly.
+
+    The one temporary-and-rename mechanism of every output: the temporary is a
+    hidden ``.<name>.<random>.part`` in the destination folder (so the rename
+    stays on one file system and an interrupted run's leftovers are easy to
+    find), with the mode a plain ``open()`` would give.  When the block ends
+    cleanly the file is synced to disk and renamed into place; on any exception
+    it is removed, and nothing appears under ``path``.
+
+    Parameters
+    ----------
+    path : str or Path
+        Final name.
+    overwrite : bool
+        Replace an existing ``path``; otherwise an existing one, or one that
+        appears while writing, raises :class:`OutputExists`.
+
+    Yields
+    ------
+    Path
+        The temporary file (created empty), for writers that need a name
+        rather than a file object (an external encoder).
+
+    Raises
+    ------
+    OutputWriteError
+        An :class:`OSError` while writing (a full disk, a lost mount, no
+        permission), as one line for the user.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> folder = Path(tempfile.mkdtemp())
+    >>> with atomic_path(folder / "note.txt") as tmp:
+    ...     _ = tmp.write_text("hello")
+    >>> sorted(p.name for p in folder.iterdir())
+    ['note.txt']
+    """
     path = Path(path)
     check_free([path], overwrite)
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
     try:
-        # mkstemp creates the file 0600; give it the mode a plain open() would.
-        umask = os.umask(0)
-        os.umask(umask)
-        with os.fdopen(fd, "wb") as handle:
-            os.fchmod(handle.fileno(), 0o666 & ~umask)
-            write(handle)
-            handle.flush()
-            os.fsync(handle.fileno())
+        try:
+            # mkstemp creates the file 0600; give it the mode a plain open() would.
+            umask = os.umask(0)
+            os.umask(umask)
+            os.fchmod(fd, 0o666 & ~umask)
+        finally:
+            os.close(fd)
+        yield Path(tmp)
+        _sync(tmp)
         if overwrite:
             os.replace(tmp, path)
         else:
@@ -56,6 +96,23 @@ def atomic_write(path, write, overwrite=False):
             # A full disk, a lost mount, no permission: one line for the user, no traceback.
             raise OutputWriteError(f"writing {path} failed: {exc.strerror or exc}") from exc
         raise
+
+
+def _sync(name):
+    """Flush a closed file's data to disk, so that the rename never publishes a hollow file."""
+    fd = os.open(name, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def atomic_write(path, write, overwrite=False):
+    """Call ``write(file_object)`` on a temporary file, then rename it to ``path`` (:func:`atomic_path`)."""
+    path = Path(path)
+    with atomic_path(path, overwrite) as tmp:
+        with open(tmp, "wb") as handle:
+            write(handle)
     return path
 
 
