@@ -26,9 +26,13 @@ import warnings
 from collections import Counter
 
 from .errors import NullrayWarning, SchedulerError, UsageError, WorkerLostError
+from .film.frame import render_frame
+from .imaging.still import _render_band
+from .imaging.tiling import is_tileable, plan_still, render_in_tiles
+from .light.observing import prepare_observation
 
-__all__ = ["SchedulerError", "auto_workers", "capped_workers", "connect", "check_scheduler", "frame_results", "local_threads",
-           "render_still_on_cluster"]
+__all__ = ["SchedulerError", "auto_workers", "capped_workers", "connect", "check_scheduler",
+           "frame_results", "local_threads", "render_still_on_cluster"]
 
 CONNECT_TIMEOUT_S = 10
 # How long a cluster may have no worker at all before a run gives up (README, Robustness);
@@ -115,7 +119,6 @@ def _accepts_n_workers(client):
 def _dask_task(job, threads):
     from dask.distributed import get_worker
 
-    from .film.frame import render_frame
 
     return render_frame(job, numba_threads=threads.get(get_worker().address, 1))
 
@@ -160,7 +163,6 @@ def frame_results(jobs, workers=1, client=None, worker_wait=WORKER_WAIT_S):
     worker_wait : float
         Seconds the cluster may have no worker before :class:`WorkerLostError`.
     """
-    from .film.frame import render_frame
 
     jobs = list(jobs)
     if not jobs:
@@ -256,8 +258,6 @@ def _still_band_task(scene, rows, threads):
     from dask.distributed import get_worker
     import numba
 
-    from .light.observing import prepare_observation
-    from .imaging.still import _render_band
 
     count = threads.get(get_worker().address, 1)
     numba.set_num_threads(max(1, min(int(count), numba.config.NUMBA_NUM_THREADS)))
@@ -277,8 +277,6 @@ def render_still_on_cluster(scene, address, *, workdir=None, progress=None, band
     """
     import dataclasses
 
-    from .light.observing import prepare_observation
-    from .imaging.tiling import is_tileable, plan_still, render_in_tiles
 
     prepare_observation(scene)
     base = plan_still(scene)

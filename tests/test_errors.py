@@ -15,7 +15,7 @@ from concurrent.futures import ProcessPoolExecutor
 import pytest
 
 import render.cli as cli
-import render.film.sequence
+import render.parallel
 import render.output.files as files
 from render.errors import (BAD_INPUT_ERRORS, RUN_ERRORS, OutputExists, OutputFolderError,
                            OutputWriteError, SceneError, SchedulerError, SequenceFolderError,
@@ -158,8 +158,8 @@ def test_a_dead_worker_through_the_command_line_exits_1(tmp_path, capsys, monkey
         raise WorkerLostError("a worker process died (killed, or out of memory) after 0 "
                               "results; what finished is kept, rerun to resume")
 
-    # render.parallel.frame_results renders frames with render.film.sequence.render_frame.
-    monkeypatch.setattr(render.film.sequence, "render_frame", lose_the_worker)
+    # render.parallel.frame_results renders frames with render.film.frame.render_frame.
+    monkeypatch.setattr(render.parallel, "render_frame", lose_the_worker)
     scene = write_sequence_scene(tmp_path)
     status, _, err = run_cli(["sequence", scene, "--workers", "1", "--quiet",
                               "--output-dir", tmp_path / "out"], capsys)

@@ -49,6 +49,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..spacetime.kerr import ergosphere_radius, horizon_radii, metric_functions
+from ..spacetime.motion import boost_frame
 
 __all__ = [
     "Viewpoint",
@@ -347,7 +348,6 @@ def _camera_tetrad(a, r, theta, frame, on_axis, cos_o, velocity):
     else:
         tetrad = observer_frame(a, r, theta, frame)
     if velocity is not None:
-        from ..spacetime.motion import boost_frame
 
         tetrad = boost_frame(tetrad, velocity)
     return tetrad

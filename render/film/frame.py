@@ -16,6 +16,8 @@ from ..geodesics.tracing import trace
 from ..imaging.still import shining_crossings
 from ..light.color import srgb_encode, to_uint8, tone_map
 from ..light.pattern import emission_time, pattern_factor
+from ..imaging.sensor import finish_still, needs_sensor
+from ..light.observing import prepare_observation, shade
 
 __all__ = ["FrameJob", "FrameResult", "render_frame"]
 
@@ -99,7 +101,6 @@ def _trace(scene, velocity, progress=None):
 
 def _shade_traced(scene, job, bundle, raw):
     """(observation, shaded) of traced rays, with the pattern at the frame's time."""
-    from ..light.observing import prepare_observation, shade
 
     spin = scene.spin
     g, hits = shining_crossings(scene, raw, bundle)
@@ -118,7 +119,6 @@ def _shade_traced(scene, job, bundle, raw):
 
 def _frame_pixels(scene, job, observation, shaded, raw, bundle):
     """The frame's 8-bit pixels (flat), exposed at the sequence's one white."""
-    from ..imaging.sensor import finish_still, needs_sensor
 
     if needs_sensor(scene):
         # Sky and supersampling seen from the moving camera's frame (render.imaging.sensor), at the

@@ -18,8 +18,8 @@ from .integrator import (FATE_ESCAPED, FATE_NAMES, deferred_interrupts, trace_ra
                          trace_to_infinity)
 from ..spacetime.kerr import capture_radius, check_spin
 
-__all__ = ["TraceSettings", "trace", "trace_bundle", "escape_directions", "resolve_method", "METHODS",
-           "DEFAULT_TOLERANCE"]
+__all__ = ["TraceSettings", "trace", "trace_bundle", "escape_directions", "resolve_method",
+           "METHODS", "DEFAULT_TOLERANCE"]
 
 DEFAULT_TOLERANCE = 1e-9
 # Rays per kernel call: large enough to keep both cores busy, small enough to

@@ -50,6 +50,14 @@ from ..geodesics.integrator import FATE_ESCAPED
 from ..light.color import SRGB_LUMINANCE
 from ..light.observing import exposure_white
 from .tiling import HALO_ROWS
+from ..errors import SceneError
+from ..geodesics.tracing import escape_directions
+from ..light.cie import xyz_to_linear_srgb_matrix
+from ..light.color import expose_true_colour, srgb_encode, to_uint16, to_uint8, tone_map
+from ..light.observing import Shaded
+from .sky import (SkyImageError, camera_vectors, load_panorama, sample_panorama, sky_vectors,
+                  splat_stars, star_field)
+from .tiling import is_tileable
 
 __all__ = ["FILTERS", "SENSOR_MODES", "check_sensor", "prepare_sky", "needs_sensor",
            "check_untiled", "halo_rows", "subpixel_offsets", "refine_mask", "finish_still"]
@@ -58,7 +66,6 @@ FILTERS = ("box", "tent")
 SENSOR_MODES = ("bolometric", "true_colour")
 # What a preview renders (README, "Preview").
 def _scene_error(message):
-    from ..errors import SceneError
 
     return SceneError(message)
 
@@ -95,7 +102,6 @@ def check_untiled(values, plan):
     automatic colour exposure); this is the same rule, kept for callers that
     plan on their own.
     """
-    from .tiling import is_tileable
 
     if (plan.tiles > 1 and (values["sky.kind"] != "none" or values["image.supersampling"] > 1)
             and not is_tileable(values)):
@@ -139,7 +145,6 @@ class Sky:
 
 @functools.lru_cache(maxsize=4)
 def _panorama(path, mtime_ns, size):
-    from .sky import load_panorama
 
     texture = load_panorama(path)
     texture.setflags(write=False)   # shared by every render that uses this file
@@ -148,7 +153,6 @@ def _panorama(path, mtime_ns, size):
 
 @functools.lru_cache(maxsize=4)
 def _stars(density, seed):
-    from .sky import star_field
 
     stars = star_field(density, seed)
     for array in (stars.directions, stars.flux, stars.temperature):
@@ -162,7 +166,6 @@ def prepare_sky(scene):
     Called before any tracing (the command line calls it before it makes any
     file); results are cached, so the render reuses them.
     """
-    from .sky import SkyImageError
 
     kind = scene["sky.kind"]
     if kind == "none":
@@ -280,8 +283,6 @@ def _disk_radiance(observation, shaded):
 
 def _panorama_radiance(sky, observation, raw, bundle, scene, white, directions):
     """Sky radiance (N, C) behind each escaped ray (0 elsewhere)."""
-    from ..light.cie import xyz_to_linear_srgb_matrix
-    from .sky import sample_panorama
 
     theta, phi = directions
     rgb = sample_panorama(sky.panorama, theta, phi)
@@ -298,7 +299,6 @@ def _panorama_radiance(sky, observation, raw, bundle, scene, white, directions):
 
 def _display(observation, scene, composite, white):
     """8-bit sRGB pixels (and 16-bit for true colour) of linear composite values."""
-    from ..light.color import expose_true_colour, srgb_encode, to_uint16, to_uint8, tone_map
 
     if observation.mode == "true_colour":
         encoded = srgb_encode(expose_true_colour(composite, white, scene["output.exposure"]))
@@ -372,7 +372,6 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ow
 def _check_band_can_be_finished(scene, rows, height):
     """Refuse a band of rows whose exposure needs the whole image at once."""
     if rows != (0, height):
-        from .tiling import is_tileable
 
         if not is_tileable(scene.values):
             raise _scene_error("observing.colour_exposure = 'auto' needs the whole image at "
@@ -381,7 +380,6 @@ def _check_band_can_be_finished(scene, rows, height):
 
 def _sky_directions(scene, bundle, raw):
     """(theta, phi) at infinity of the escaped rays of a traced bundle."""
-    from ..geodesics.tracing import escape_directions
 
     return escape_directions(bundle, raw, scene.spin, scene["tracing.tolerance"],
                              scene["tracing.max_steps"])
@@ -461,7 +459,6 @@ def _sky_info(scene, sky):
 def _add_stars(scene, observation, sky, composite, white, bundle, centre_dirs, alpha, beta,
                rows):
     """Add the star images seen by the pixel-centre rays to ``composite``; return their counts."""
-    from .sky import camera_vectors, sky_vectors, splat_stars
 
     height, width = alpha.shape
     lo, hi = rows
@@ -484,7 +481,6 @@ def _add_stars(scene, observation, sky, composite, white, bundle, centre_dirs, a
 
 def _finished(observation, scene, shaded, composite, samples, white, info):
     """The Shaded of a finished still: its picture, composite and sample counts."""
-    from ..light.observing import Shaded
 
     pixels, pixels16 = _display(observation, scene, composite, white)
     products = dict(shaded.products)

@@ -62,6 +62,7 @@ from numba import njit, prange
 
 from ..light.cie import blackbody_xyz_at_log
 from ..geodesics.integrator import deferred_interrupts
+from ..light.cie import blackbody_xyz_table
 
 __all__ = ["SKY_KINDS", "StarField", "inverse_magnification", "sky_vectors", "load_panorama",
            "sample_panorama", "star_field", "splat_stars", "pixel_solid_angle",
@@ -549,7 +550,6 @@ def splat_stars(stars, sky, cam, g, colour=False, cells=None):
     ----------
     Van Oosterom & Strackee (1983); Schneider, Ehlers & Falco (1992), sec. 5.1.
     """
-    from ..light.cie import blackbody_xyz_table
 
     height, width = g.shape
     ok = np.all(np.isfinite(sky), axis=-1) & np.isfinite(g) & (g > 0)

@@ -35,6 +35,9 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import OutputWriteError
+from ..errors import SceneError
+from ..light.observing import PER_ORDER_PRODUCTS
+from .result import StillResult
 
 __all__ = ["TilePlan", "plan_still", "check_memory", "render_in_tiles",
            "TileStore"]
@@ -50,7 +53,6 @@ HALO_ROWS = 2
 
 
 def _scene_error(message):
-    from ..errors import SceneError
 
     return SceneError(message)
 
@@ -133,7 +135,6 @@ def check_memory(values, budget_bytes=None):
     # rows (render.imaging.sensor.halo_rows): the tile's memory includes them.
     halo = 0
     if values["sky.kind"] != "none" or values["image.supersampling"] > 1:
-        from .tiling import HALO_ROWS
 
         halo = 2 * HALO_ROWS + 1
     if picture > budget * (1.0 - TILE_SHARE) or (1 + halo) * row > budget * TILE_SHARE:
@@ -275,8 +276,6 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
     returned result holds memory maps of them (``result.release()`` deletes
     them).  On any exception, Ctrl-C included, the temporary folder is removed.
     """
-    from ..light.observing import PER_ORDER_PRODUCTS
-    from .result import StillResult
 
     started = time.perf_counter()
     store = TileStore(workdir)

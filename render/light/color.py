@@ -14,6 +14,7 @@ import math
 
 import numpy as np
 from numba import njit, prange
+from .cie import xyz_to_linear_srgb_matrix
 
 __all__ = ["SRGB_LUMINANCE", "tone_map", "srgb_encode", "to_uint8", "to_uint16", "xyz_to_linear_srgb",
            "desaturate_into_gamut", "expose_true_colour", "automatic_reference_luminance"]
@@ -76,7 +77,6 @@ def xyz_to_linear_srgb(xyz):
     ----------
     IEC 61966-2-1:1999; matrix from :func:`render.light.cie.xyz_to_linear_srgb_matrix`.
     """
-    from .cie import xyz_to_linear_srgb_matrix
 
     xyz = np.asarray(xyz, dtype=float)
     out = np.empty(xyz.shape)

@@ -14,6 +14,7 @@ register it in ``EMISSION_LAWS`` and describe its scene keys in
 from dataclasses import dataclass
 
 import numpy as np
+from .thermal import cgs, diluted_blackbody, page_thorne_flux
 
 __all__ = ["PowerLaw", "NovikovThorne", "RadialProfile", "EmissionTableError", "EMISSION_LAWS",
            "observed_bolometric", "observed_specific_intensity", "make_emission_law",
@@ -77,13 +78,11 @@ class NovikovThorne:
     has_spectrum = True
 
     def flux(self, r):
-        from .thermal import page_thorne_flux
 
         return page_thorne_flux(r, self.spin, self.mass_msun, self.accretion_rate_g_s)
 
     def temperature(self, r):
         """Effective temperature T(r) in K (0 at and inside the ISCO)."""
-        from .thermal import cgs
 
         return (np.asarray(self.flux(r)) / cgs()["sigma_sb"]) ** 0.25
 
@@ -96,7 +95,6 @@ class NovikovThorne:
 
     def specific_intensity(self, nu, r):
         """Rest-frame I_nu(nu, r) in erg s^-1 cm^-2 Hz^-1 sr^-1 (broadcasting)."""
-        from .thermal import diluted_blackbody
 
         return diluted_blackbody(nu, self.temperature(r), self.colour_correction)
 

@@ -36,6 +36,12 @@ from .color import (automatic_reference_luminance, desaturate_into_gamut, expose
                     srgb_encode, to_uint8, to_uint16, tone_map, xyz_to_linear_srgb)
 from .emission import (EmissionTableError, NovikovThorne, PowerLaw, RadialProfile,
                        emission_cosine, limb_darkening, observed_bolometric)
+from ..errors import SceneError
+from ..units import angular_gravitational_radius_uas
+from .cie import blackbody_xyz_sum
+from .emission import observed_specific_intensity
+from .spectra import flat_space_spectrum, image_spectrum, line_profile, redshift_spread
+from .thermal import accretion_rate_g_per_s, cgs, radiative_efficiency
 
 __all__ = ["MODES", "Observation", "Shaded", "prepare_observation", "shade", "exposure_white",
            "check_observing", "observing_frequency_hz", "pixel_angle_rad"]
@@ -49,7 +55,6 @@ PER_ORDER_PRODUCTS = ("emission_cosine",)
 
 
 def _scene_error(message):
-    from ..errors import SceneError
 
     return SceneError(message)
 
@@ -84,7 +89,6 @@ def check_observing(values):
 
 def observing_frequency_hz(scene):
     """The observed frequency in Hz from frequency, wavelength (nm) or photon energy (keV)."""
-    from .thermal import cgs
 
     k = cgs()
     if scene["observing.frequency"] is not None:
@@ -98,7 +102,6 @@ def observing_frequency_hz(scene):
 
 def pixel_angle_rad(scene):
     """Angular width of one pixel (rad) from field of view, mass and distance."""
-    from ..units import angular_gravitational_radius_uas
 
     theta_g_uas = angular_gravitational_radius_uas(scene["black_hole.mass"],
                                                    scene["black_hole.distance"])
@@ -126,7 +129,6 @@ class Observation:
 
 def prepare_observation(scene):
     """Build the emission law and the mode's settings; bad input raises SceneError."""
-    from .thermal import accretion_rate_g_per_s, radiative_efficiency
 
     name = scene["emission.law"]
     info = {"mode": scene["observing.mode"], "law": name,
@@ -279,7 +281,6 @@ def shade(obs, scene, raw, g, hits, bundle):
     white = exposure_white(obs, r_in, r_out)
     intensity = bolometric
     if obs.mode == "monochromatic":
-        from .emission import observed_specific_intensity
 
         intensity = _summed(observed_specific_intensity(obs.frequency_hz, g, r, law) * weight,
                             hits)
@@ -307,7 +308,6 @@ def shade(obs, scene, raw, g, hits, bundle):
             "relativistic_peak": float(tables["spectrum"]["flux_relativistic_jy"].max()),
             "flat_peak": float(tables["spectrum"]["flux_flat_jy"].max())}
     elif obs.mode == "line":
-        from .spectra import line_profile, redshift_spread
 
         spread = redshift_spread(g, hits, scene["image.height"], scene["image.width"])
         line, image, line_info = line_profile(
@@ -325,7 +325,6 @@ def shade(obs, scene, raw, g, hits, bundle):
 
 
 def _add_flux(scene, intensity, products, info):
-    from .thermal import cgs
 
     omega = pixel_angle_rad(scene) ** 2
     flux = intensity * omega / cgs()["Jy"]
@@ -338,7 +337,6 @@ def _add_flux(scene, intensity, products, info):
 
 def colour_xyz(law, r, g, weight):
     """XYZ (N, 3) of the observed colour-corrected blackbody light, summed over orders."""
-    from .cie import blackbody_xyz_sum
 
     t_obs = g * law.colour_temperature(r)
     dilution = law.colour_correction ** -4
@@ -367,7 +365,6 @@ def _true_colour(obs, scene, r, g, weight, hits):
 
 def disk_spectrum(obs, scene, r, g, weight, hits):
     """F_nu (Jy) of the whole disk, ray-traced and in flat space; see the module doc."""
-    from .spectra import flat_space_spectrum, image_spectrum
 
     nu = np.geomspace(scene["observing.spectrum_low"], scene["observing.spectrum_high"],
                       scene["observing.spectrum_points"])

@@ -13,6 +13,7 @@ Fabian, Rees, Stella & White (1989), MNRAS 238, 729; Laor (1991), ApJ 376, 90 (l
 import numpy as np
 
 from .thermal import cgs, planck_nu
+from .emission import limb_darkening
 
 __all__ = ["image_spectrum", "flat_space_spectrum", "line_profile", "redshift_spread"]
 
@@ -60,7 +61,6 @@ def flat_space_spectrum(law, nu, r_in, r_out, inclination_deg, mass_msun, distan
     ----------
     Frank, King & Raine (2002), Accretion Power in Astrophysics, eq. 5.45.
     """
-    from .emission import limb_darkening
 
     k = cgs()
     r_g = k["G"] * mass_msun * k["M_sun"] / k["c"] ** 2

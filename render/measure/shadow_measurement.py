@@ -54,6 +54,9 @@ from ..geodesics.tracing import trace
 from ..light.transfer import trace_points
 from ..errors import SceneError
 from .shadow import closed_curve_moments, critical_curve, shadow_moments
+from ..imaging.still import render_still
+from ..light.emission import make_emission_law, observed_bolometric
+from ..units import angular_gravitational_radius_uas
 
 __all__ = [
     "MeasureError",
@@ -316,7 +319,6 @@ def image_moments(intensity, alpha, beta, pixel_size):
 
 
 def _per_order_intensity(result, scene):
-    from ..light.emission import make_emission_law, observed_bolometric
 
     law = make_emission_law(scene["emission.law"], index=scene["emission.index"])
     with np.errstate(invalid="ignore"):
@@ -527,7 +529,6 @@ def measure_scene(scene, tolerances=None, result=None):
     MeasureError
         The field of view does not contain the whole shadow, or nothing is captured.
     """
-    from ..imaging.still import render_still
 
     tolerances = _tolerances(scene, tolerances)
     analytic, curve, distance = _analytic(scene)
@@ -622,7 +623,6 @@ def _image_moments_by_order(result, scene, h):
 
 def _physical_sizes(scene, measured, analytic, rings):
     """Shadow and ring sizes in microarcseconds, for the scene's mass and distance."""
-    from ..units import angular_gravitational_radius_uas
 
     uas = angular_gravitational_radius_uas(scene["black_hole.mass"], scene["black_hole.distance"])
     return {

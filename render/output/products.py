@@ -46,6 +46,8 @@ from pathlib import Path
 import numpy as np
 
 from .files import STREAM_CHUNK_BYTES, _npy_file, atomic_write, check_free
+from ..light.observing import pixel_angle_rad
+from ..scene.loader import scene_from_dict
 
 __all__ = ["product_paths", "write_products", "write_fits", "write_png16", "write_npy",
            "write_table_csv", "fits_hdus", "read_rows"]
@@ -237,8 +239,6 @@ def _fits_layout(result):
     """
     from astropy.io import fits
 
-    from ..light.observing import pixel_angle_rad
-    from ..scene.loader import scene_from_dict
 
     meta = result.metadata
     doc = meta["scene"]

@@ -23,6 +23,9 @@ from .keys import (CAMERA_PATHS, INTERPOLATIONS, KEYFRAME_SECTIONS, KEYS, MAX_KE
                    MAX_PIXELS_SIDE, SECTIONS, keys_reference)
 from ..geodesics.tracing import TraceSettings, resolve_method
 from ..spacetime.kerr import horizon_radii, isco_radius
+from ..imaging.sensor import check_sensor, check_untiled
+from ..imaging.tiling import check_memory
+from ..light.observing import check_observing
 
 __all__ = [
     "SceneError",
@@ -317,18 +320,14 @@ def _check_consistency(values):
         _fail("tracing.method", "closed-form",
               "integrate or auto with observer.kind: camera (the closed form needs a distant "
               "observer)")
-    from ..light.observing import check_observing
 
     check_observing(values)
-    from ..imaging.sensor import check_sensor
 
     check_sensor(values)
     _check_animation(values, inner)
     # Refuse, before any work, a still that cannot fit the memory budget even in tiles.
-    from ..imaging.tiling import check_memory
 
     plan = check_memory(values)
-    from ..imaging.sensor import check_untiled
 
     check_untiled(values, plan)
 
@@ -580,7 +579,6 @@ def preview_scene(scene):
     >>> quick["image.width"], quick["image.height"], quick["disk.orders"], quick["name"]
     (160, 80, 1, 'scene-preview')
     """
-    from ..scene.loader import nest_values, scene_from_dict
 
     values = dict(scene.values)
     width = min(PREVIEW["image.width"], values["image.width"])
