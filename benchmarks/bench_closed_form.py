@@ -29,7 +29,7 @@ image only
     :func:`render.imaging.still.render_still` of a 3840 x 2160 Novikov–Thorne disk in
     true colour (spin 0.9, inclination 60 deg, 3 orders, transparent disk, fixed
     colour exposure, so that it renders in row tiles within the default 2 GB
-    memory budget) with ``tracing.method: closed-form``: wall time of the whole
+    memory budget) with ``tracing.method: closed_form``: wall time of the whole
     render (tracing, shading, tone mapping; no file writing), one run after a
     small warm-up; once as an image only (``maps=False``: the phi and delay maps
     skipped, as with ``output.npz: false``) and once with the maps.
@@ -137,12 +137,12 @@ def main():
     if not args.no_4k:
         print("rendering the 3840x2160 true-colour still...", file=sys.stderr)
         values = {"image.width": 3840, "image.height": 2160, "black_hole.spin": SPIN,
-                  "observer.inclination": INCLINATION_DEG, "observer.kind": "distant",
+                  "observer.inclination": INCLINATION_DEG, "observer.placement": "distant",
                   "observer.field_of_view": 40.0, "disk.surface": "transparent",
                   "disk.orders": ORDERS, "emission.law": "novikov_thorne",
                   "black_hole.mass": 10.0, "observing.mode": "true_colour",
                   "observing.colour_exposure": "fixed", "observing.colour_reference": 1e18,
-                  "tracing.method": "closed-form"}
+                  "tracing.method": "closed_form"}
         render_still(default_scene(**{**values, "image.width": 16, "image.height": 9}))
         for label, maps in (("still_4k", False), ("still_4k_with_maps", True)):
             started = time.perf_counter()

@@ -41,7 +41,7 @@ def measure_colour_overhead(size=512, repeat=3):
     from render.imaging.still import observer_rays, render_still
 
     values = {"image.width": args.size, "image.height": args.size, "black_hole.spin": 0.9,
-              "observer.inclination": 60.0, "observer.kind": "distant",
+              "observer.inclination": 60.0, "observer.placement": "distant",
               "disk.surface": "transparent", "disk.orders": 2,
               "emission.law": "novikov_thorne", "black_hole.mass": 10.0}
     bolometric = default_scene(**values)

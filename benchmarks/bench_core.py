@@ -133,7 +133,7 @@ def benchmark_scene():
     """The benchmark scene: 512x512, a = 0.9, i = 60 deg, distant observer, transparent disk."""
     from render import default_scene
     return default_scene(**{
-        "observer.kind": "distant", "disk.surface": "transparent",
+        "observer.placement": "distant", "disk.surface": "transparent",
         "image.width": SIZE, "image.height": SIZE, "black_hole.spin": SPIN,
         "observer.inclination": INCLINATION_DEG, "disk.orders": ORDERS})
 

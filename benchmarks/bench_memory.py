@@ -64,7 +64,7 @@ def main(argv=None):
     from render.output.products import write_products
     from render.imaging.still import render_still
 
-    values = {"name": "bench-memory", "observer.kind": "distant", "black_hole.spin": 0.9,
+    values = {"name": "bench-memory", "observer.placement": "distant", "black_hole.spin": 0.9,
               "observer.inclination": 60.0, "disk.orders": args.orders,
               "tracing.tolerance": args.tolerance, "tracing.memory_budget": args.budget}
     if args.products == "all":

@@ -55,15 +55,15 @@ def main():
             "observer.field_of_view": 120.0, "name": "bench-sky"}
     variants = {
         "plain": default_scene(**base),
-        "stars": default_scene(**base, **{"sky.kind": "stars"}),
-        "panorama": default_scene(**base, **{"sky.kind": "image", "sky.image": panorama}),
+        "stars": default_scene(**base, **{"sky.backdrop": "stars"}),
+        "panorama": default_scene(**base, **{"sky.backdrop": "image", "sky.image": panorama}),
         "antialias_adaptive": default_scene(**base, **{"image.supersampling": 3}),
         "antialias_full": default_scene(**base, **{"image.supersampling": 3,
                                                    "image.adaptive": False}),
     }
     variants["preview"] = preview_scene(variants["plain"])
     small = {**base, "image.width": 16, "image.height": 16}
-    for extra in ({}, {"sky.kind": "stars"}, {"sky.kind": "image", "sky.image": panorama},
+    for extra in ({}, {"sky.backdrop": "stars"}, {"sky.backdrop": "image", "sky.image": panorama},
                   {"image.supersampling": 2}):
         render_still(default_scene(**small, **extra))   # compile and cache
     times = {name: [] for name in variants}
@@ -79,7 +79,7 @@ def main():
     median = {name: statistics.median(t) for name, t in times.items()}
     # The whole preview command as a user runs it (a fresh process, warm numba cache).
     command = [sys.executable, "-m", "render", "still", "--preview", "--quiet", "--overwrite",
-               "--set", "sky.kind=stars", "--output-dir", folder]
+               "--set", "sky.backdrop=stars", "--output-dir", folder]
     subprocess.run(command, check=True)        # warm the cache of a fresh process
     command_times = []
     for _ in range(args.repeat):

@@ -120,7 +120,7 @@ def _print_still_summary(scene, result, paths, shown=()):
               f"{antialias['pixels_refined']} of {antialias['pixels']} pixels refined "
               f"with {antialias['supersampling']}x{antialias['supersampling']} "
               f"{antialias['filter']}-filtered rays)")
-    if observed.get("sky", {}).get("kind") == "stars":
+    if observed.get("sky", {}).get("backdrop") == "stars":
         stars = observed["sky"]
         print(f"sky: {stars['stars']} stars, {stars['star_images']:.0f} star images in view")
     for warning in observed.get("warnings", ()):

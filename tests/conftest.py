@@ -13,7 +13,7 @@ def small_scene():
     """A 64x64 distant-observer scene factory: small_scene(**{"dotted.key": value})."""
 
     def make(**values):
-        base = {"image.width": 64, "image.height": 64, "observer.kind": "distant"}
+        base = {"image.width": 64, "image.height": 64, "observer.placement": "distant"}
         base.update(values)
         return default_scene(**base)
 

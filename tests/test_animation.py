@@ -26,7 +26,7 @@ from render.errors import SceneError
 
 REPO = Path(__file__).resolve().parents[1]
 
-SMALL = {"image.width": 32, "image.height": 18, "observer.kind": "distant",
+SMALL = {"image.width": 32, "image.height": 18, "observer.placement": "distant",
          "observer.field_of_view": 30.0, "output.npz": False}
 
 
@@ -222,7 +222,7 @@ def test_unreachable_scheduler_for_a_still_exits_2_with_nothing_written(tmp_path
     (["--set", "animation.frames=0"], "animation.frames = 0"),
     (["--set", "animation.frames=-2"], "animation.frames = -2"),
     (["--scheduler", "tcp://127.0.0.1:9"], "cannot be reached"),
-    (["--set", "observer.kind=camera", "--set", "animation.camera_path=plunge",
+    (["--set", "observer.placement=camera", "--set", "animation.camera_path=plunge",
       "--set", "observer.distance=12", "--set", "animation.time_step=20"], "horizon"),
 ])
 def test_bad_sequence_input_exits_2_with_nothing_written(tmp_path, capsys, no_tracing, extra,
@@ -248,9 +248,9 @@ def test_light_curve_period_of_an_orbiting_spot():
     spin, radius = 0.5, 8.0
     expected = 2 * np.pi * (radius ** 1.5 + spin)
     scene = default_scene(**{
-        "image.width": 48, "image.height": 48, "observer.kind": "distant",
+        "image.width": 48, "image.height": 48, "observer.placement": "distant",
         "black_hole.spin": spin, "observer.inclination": 70.0, "observer.field_of_view": 24.0,
-        "disk.outer_radius": 12.0, "pattern.kind": "spot", "pattern.radius": radius,
+        "disk.outer_radius": 12.0, "pattern.shape": "spot", "pattern.radius": radius,
         "pattern.size": 1.5, "animation.frames": 1})
     job = plan_sequence(scene).jobs[0]
     samples = np.linspace(0.0, 1.3 * expected, 60)
@@ -378,7 +378,7 @@ def _frames_of(result):
             for k in range(3)]
 
 
-@pytest.mark.parametrize("method", ["closed-form", "auto"])
+@pytest.mark.parametrize("method", ["closed_form", "auto"])
 def test_a_distant_film_asked_for_the_closed_form_never_integrates(tmp_path, monkeypatch, method):
     # auto means the closed form for a distant observer (README, tracing.method).
     _refuse(monkeypatch, render.geodesics.tracing, "trace_rays")
@@ -402,7 +402,7 @@ def test_closed_form_and_integrated_films_agree_to_one_level(tmp_path):
     # The two methods agree to ~1e-8 relative in r and g away from the critical curve
     # (docs/closed_form.md, checked in tests/test_closed_form.py); a relative change of 1e-8
     # in a pixel's intensity can move its 8-bit value across at most one rounding boundary.
-    closed = _frames_of(render_sequence(_method_film("closed-form"), tmp_path, products=False))
+    closed = _frames_of(render_sequence(_method_film("closed_form"), tmp_path, products=False))
     integrated = _frames_of(render_sequence(_method_film("integrate"), tmp_path, products=False))
     for a, b in zip(closed, integrated):
         assert np.max(np.abs(a - b)) <= 1
@@ -413,7 +413,7 @@ def test_closed_form_and_integrated_films_agree_to_one_level(tmp_path):
 def test_the_frame_trace_cache_keeps_the_methods_apart(monkeypatch):
     # A frame whose geometry equals the last frame's reuses its rays (render.film.frame);
     # the same view traced by another method must be traced again.
-    closed_job = plan_sequence(_method_film("closed-form")).jobs[2]
+    closed_job = plan_sequence(_method_film("closed_form")).jobs[2]
     integrated_job = plan_sequence(_method_film("integrate")).jobs[2]
     render_frame(closed_job)
     _refuse(monkeypatch, render.geodesics.closed_form, "closed_form_crossings")

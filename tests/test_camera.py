@@ -19,7 +19,7 @@ def still(small_scene, **values):
 
 
 def camera(small_scene, distance, frame="zamo", **values):
-    return still(small_scene, **{"observer.kind": "camera", "observer.distance": distance,
+    return still(small_scene, **{"observer.placement": "camera", "observer.distance": distance,
                                  "observer.frame": frame}, **values)
 
 
@@ -34,7 +34,7 @@ def far_cameras():
     from render import default_scene
 
     def scene(**values):
-        base = {"image.width": 64, "image.height": 64, "observer.kind": "distant"}
+        base = {"image.width": 64, "image.height": 64, "observer.placement": "distant"}
         base.update(values)
         return default_scene(**base)
 

@@ -149,14 +149,14 @@ def test_scene_file_name_names_the_outputs(tmp_path, capsys):
 
 
 def test_set_overrides_reach_the_outputs(tmp_path, capsys):
-    status, _, _ = run_cli(["still", *SMALL, "--set", "observer.kind=distant",
+    status, _, _ = run_cli(["still", *SMALL, "--set", "observer.placement=distant",
                             "--set", "observer.inclination=17.5", "--set", "output.png=false",
                             "--set", "name=tilted", "--output-dir", tmp_path], capsys)
     assert status == 0
     assert [p.name for p in tmp_path.iterdir()] == ["tilted.npz"]
     with np.load(tmp_path / "tilted.npz") as data:
         scene = json.loads(str(data["metadata"]))["scene"]
-    assert scene["observer"]["kind"] == "distant"
+    assert scene["observer"]["placement"] == "distant"
     assert scene["observer"]["inclination"] == 17.5
     assert scene["output"]["png"] is False
 

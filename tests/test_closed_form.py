@@ -156,7 +156,7 @@ def test_schwarzschild_deflection_matches_darwin():
     # folded into [0, pi].  1e-9 rad: both sides are exact to ~1e-12.
     b = np.geomspace(5.25, 200.0, 60)
     out = trace_points(np.zeros_like(b), b, spin=0.0, inclination_deg=60.0, max_orders=1,
-                       method="closed-form")
+                       method="closed_form")
     assert np.all(out["fate"] == "escaped")
     swept = np.pi + np.array([_darwin_deflection(x) for x in b])
     # beta > 0: the backward ray first moves to smaller theta (dtheta/dsigma = -beta).
@@ -170,7 +170,7 @@ def test_schwarzschild_equatorial_deflection_in_phi():
     # (Darwin 1959); compared modulo 2 pi, 1e-9 rad.
     b = np.geomspace(5.3, 300.0, 40)
     out = trace_points(b, np.zeros_like(b), spin=0.0, inclination_deg=90.0, max_orders=1,
-                       method="closed-form")
+                       method="closed_form")
     swept = np.pi + np.array([_darwin_deflection(x) for x in b])
     difference = np.angle(np.exp(1j * (out["phi_end"] - swept)))
     assert np.all(np.abs(difference) <= 1e-9)
@@ -225,7 +225,7 @@ def _compare_with_integrator(spin, inclination, size, field_of_view=24.0):
     beta = beta.ravel()
     away = _critical_distance(spin, inclination, alpha, beta) > 1e-3
     closed = trace_points(alpha, beta, spin=spin, inclination_deg=inclination, max_orders=2,
-                          method="closed-form", max_crossings=64)
+                          method="closed_form", max_crossings=64)
     # The integrator at tolerance 1e-12: its crossings are then good to ~1e-11 relative,
     # except in known hard spots (crossings at r > 1e5 M nearly parallel to the plane,
     # passes within ~0.2 M of the axis that swing phi by ~pi).  Pixels that miss a
@@ -234,7 +234,7 @@ def _compare_with_integrator(spin, inclination, size, field_of_view=24.0):
     # n = 1 crossings need the referee for phi).
     ref = trace_points(alpha, beta, spin=spin, inclination_deg=inclination, max_orders=2,
                        tolerance=1e-12, max_crossings=64)
-    assert np.all(closed["method"] == "closed-form") and np.all(ref["method"] == "integrate")
+    assert np.all(closed["method"] == "closed_form") and np.all(ref["method"] == "integrate")
     assert np.array_equal(closed["fate"][away], ref["fate"][away])
     assert np.array_equal(closed["n_crossings"][away], ref["n_crossings"][away])
     for n in range(2):
@@ -285,7 +285,7 @@ def test_redshift_factor_uses_the_disk_rule():
     # g from the closed-form radii through render.light.disk.redshift_factor
     # (Cunningham & Bardeen 1973): NaN inside the ISCO like the integrator's.
     alpha, beta = np.array([-3.0, 8.0]), np.array([0.5, 6.0])
-    out = trace_points(alpha, beta, spin=0.9, inclination_deg=60.0, method="closed-form")
+    out = trace_points(alpha, beta, spin=0.9, inclination_deg=60.0, method="closed_form")
     bundle = distant_observer_rays(alpha, beta, 0.9, 60.0)
     expected = redshift_factor(out["r"], bundle.lam[:, None], 0.9)
     assert np.array_equal(np.isnan(out["g"]), np.isnan(expected))
@@ -297,15 +297,15 @@ def test_redshift_factor_uses_the_disk_rule():
 
 def test_method_selection_rules():
     # common practice: auto picks the closed form only for the distant observer.
-    assert resolve_method("auto", "distant") == "closed-form"
+    assert resolve_method("auto", "distant") == "closed_form"
     assert resolve_method("auto", "camera") == "integrate"
     assert resolve_method("integrate", "distant") == "integrate"
     with pytest.raises(ValueError, match="distant"):
-        resolve_method("closed-form", "camera")
+        resolve_method("closed_form", "camera")
     with pytest.raises(ValueError, match="method"):
         trace_points([1.0], [1.0], spin=0.5, inclination_deg=30.0, method="fast")
     assert trace_points([1.0, 2.0], [6.0, 1.0], spin=0.5, inclination_deg=30.0,
-                        method="auto")["method"].tolist() == ["closed-form"] * 2
+                        method="auto")["method"].tolist() == ["closed_form"] * 2
 
 
 def test_closed_form_bundle_raw_keys_match_trace_bundle():
@@ -332,7 +332,7 @@ def test_render_still_method_choice_and_agreement(small_scene):
     closed = render_still(small_scene(**{"black_hole.spin": 0.9, "observer.inclination": 60.0,
                                          "tracing.method": "auto"}))
     assert integrated.metadata["tracing_method"] == "integrate"
-    assert closed.metadata["tracing_method"] == "closed-form"
+    assert closed.metadata["tracing_method"] == "closed_form"
     assert closed.metadata["scene"]["tracing"]["method"] == "auto"
     same = np.all(closed.on_disk == integrated.on_disk, axis=0)
     assert same.mean() > 0.99
@@ -346,7 +346,7 @@ def test_render_still_opaque_disk_closed_form(small_scene):
     # integrator does (render.geodesics.integrator: stop_on_disk).
     values = {"disk.surface": "opaque", "black_hole.spin": 0.5, "observer.inclination": 75.0}
     integrated = render_still(small_scene(**values))
-    closed = render_still(small_scene(**values, **{"tracing.method": "closed-form"}))
+    closed = render_still(small_scene(**values, **{"tracing.method": "closed_form"}))
     agree = closed.fate == integrated.fate
     assert agree.mean() > 0.99
     # rtol 1e-6: the integrator runs at the default tolerance 1e-9 here, and its
@@ -359,8 +359,8 @@ def test_closed_form_refused_for_a_camera():
     from render.errors import SceneError
 
     with pytest.raises(SceneError, match="tracing.method"):
-        default_scene(**{"observer.kind": "camera", "tracing.method": "closed-form"})
-    assert default_scene(**{"observer.kind": "camera",
+        default_scene(**{"observer.placement": "camera", "tracing.method": "closed_form"})
+    assert default_scene(**{"observer.placement": "camera",
                             "tracing.method": "auto"})["tracing.method"] == "auto"
 
 

@@ -14,9 +14,9 @@ from render.parallel import connect, local_threads
 
 def _scene():
     return default_scene(name="spread", **{
-        "image.width": 32, "image.height": 18, "observer.kind": "distant",
+        "image.width": 32, "image.height": 18, "observer.placement": "distant",
         "observer.field_of_view": 30.0, "output.npz": False, "animation.frames": 4,
-        "pattern.kind": "spot", "pattern.size": 2.0, "animation.time_step": 20.0,
+        "pattern.shape": "spot", "pattern.size": 2.0, "animation.time_step": 20.0,
         "animation.keyframes": [{"frame": 0, "observer.inclination": 30},
                                 {"frame": 3, "observer.inclination": 70}]})
 
@@ -69,7 +69,7 @@ def test_a_still_in_bands_on_the_cluster_equals_the_local_still(tmp_path, cluste
     from render import render_still
     from render.parallel import render_still_on_cluster
 
-    scene = default_scene(**{"image.width": 40, "image.height": 30, "observer.kind": "distant",
+    scene = default_scene(**{"image.width": 40, "image.height": 30, "observer.placement": "distant",
                              "disk.surface": "transparent"})
     local = render_still(scene)
     spread = render_still_on_cluster(scene, cluster.scheduler_address, workdir=tmp_path)
@@ -115,7 +115,7 @@ def test_pool_workers_leave_when_the_client_is_killed(tmp_path):
 
     scene = tmp_path / "orphans.yaml"
     scene.write_text(yaml.safe_dump({
-        "image": {"width": 32, "height": 18}, "observer": {"kind": "distant"},
+        "image": {"width": 32, "height": 18}, "observer": {"placement": "distant"},
         "animation": {"frames": 40, "keyframes": [{"frame": 0, "observer.inclination": 10},
                                                   {"frame": 39, "observer.inclination": 80}]}}))
     client = subprocess.Popen([sys.executable, "-m", "render", "sequence", str(scene),
@@ -142,7 +142,7 @@ def test_a_huge_worker_count_is_capped_and_said_in_one_line(tmp_path, capsys):
     from conftest import run_cli
 
     scene = tmp_path / "tiny.yaml"
-    scene.write_text("image:\n  width: 16\n  height: 16\nobserver:\n  kind: distant\n"
+    scene.write_text("image:\n  width: 16\n  height: 16\nobserver:\n  placement: distant\n"
                      "animation:\n  frames: 1\n", encoding="utf-8")
     status, out, err = run_cli(["sequence", scene, "--workers", "1000000000", "--output-dir",
                                 tmp_path / "out", "--quiet"], capsys)

@@ -75,7 +75,7 @@ def test_grazing_pixels_are_counted_and_reported(tmp_path, capsys):
 
     # A face-on Schwarzschild image whose pixel grid straddles the photon ring: with at
     # most 3 crossings followed, pixels just outside b_c end unresolved, only there.
-    args = ["still", "--set", "observer.kind=distant", "--set", "black_hole.spin=0",
+    args = ["still", "--set", "observer.placement=distant", "--set", "black_hole.spin=0",
             "--set", "observer.inclination=0", "--set", "image.width=64", "--set",
             "image.height=64", "--set", "observer.field_of_view=12", "--set",
             "disk.surface=transparent", "--set", "tracing.max_crossings=3",
@@ -106,7 +106,7 @@ def test_spin_0_9999_isco_near_the_horizon():
     assert r_plus < isco_radius(a) < 1.1
     # A narrow field of view (pixels of 0.19 M) resolves the inner edge.
     still = render_still(default_scene(**{
-        "black_hole.spin": a, "observer.kind": "distant", "observer.inclination": 30.0,
+        "black_hole.spin": a, "observer.placement": "distant", "observer.inclination": 30.0,
         "image.width": 64, "image.height": 64, "observer.field_of_view": 12.0,
         "disk.surface": "opaque"}))
     hits = still.on_disk
@@ -312,7 +312,7 @@ def test_negative_energy_photons_seen_from_deep_in_the_ergoregion(tmp_path):
     a, r_o, inclination = 0.998, 1.3, 85.0
     theta_o = math.radians(inclination)
     scene = default_scene(**{
-        "black_hole.spin": a, "observer.kind": "camera", "observer.frame": "zamo",
+        "black_hole.spin": a, "observer.placement": "camera", "observer.frame": "zamo",
         "observer.distance": r_o, "observer.inclination": inclination,
         "observer.field_of_view": 40.0, "image.width": 24, "image.height": 24,
         "disk.surface": "opaque", "disk.outer_radius": 20.0})
@@ -374,7 +374,7 @@ def test_face_on_view_is_symmetric_about_the_axis(kind):
     # Axisymmetry of Kerr (common practice): face-on, the image is unchanged by a
     # quarter turn (the grid maps onto itself; fates exactly, radii to the tolerance).
     still = render_still(default_scene(**{
-        "black_hole.spin": 0.7, "observer.kind": kind, "observer.distance": 80.0,
+        "black_hole.spin": 0.7, "observer.placement": kind, "observer.distance": 80.0,
         "observer.inclination": 0.0, "image.width": 32, "image.height": 32,
         "disk.surface": "transparent", "disk.orders": 2}))
     assert np.array_equal(still.fate, np.rot90(still.fate))
@@ -389,7 +389,7 @@ def test_disk_exactly_edge_on(kind):
     # the rows just above and below see its two faces, mirror images of each other
     # (equatorial reflection symmetry, common practice).
     still = render_still(default_scene(**{
-        "black_hole.spin": 0.9, "observer.kind": kind, "observer.distance": 50.0,
+        "black_hole.spin": 0.9, "observer.placement": kind, "observer.distance": 50.0,
         "observer.inclination": 90.0, "image.width": 21, "image.height": 21,
         "disk.surface": "opaque"}))
     middle = 10
@@ -426,7 +426,7 @@ def test_a_stop_signal_during_tracing_exits_cleanly_and_leaves_no_files(tmp_path
     out_dir = tmp_path / "out"
     env = dict(os.environ, PYTHONUNBUFFERED="1")
     process = subprocess.Popen(
-        [sys.executable, "-m", "render", "still", "--set", "observer.kind=distant",
+        [sys.executable, "-m", "render", "still", "--set", "observer.placement=distant",
          "--set", "image.width=512", "--set", "image.height=512", "--set",
          "tracing.memory_budget=0.01", "--set", "tracing.tolerance=1e-11",
          "--output-dir", str(out_dir)],

@@ -25,7 +25,7 @@ from render.parallel import _results_in_order
 
 from conftest import run_cli  # noqa: E402  (shared test helpers)
 
-SMALL = ["--set", "image.width=16", "--set", "image.height=16", "--set", "observer.kind=distant",
+SMALL = ["--set", "image.width=16", "--set", "image.height=16", "--set", "observer.placement=distant",
          "--set", "disk.orders=1"]
 
 
@@ -131,7 +131,7 @@ def test_a_real_full_filesystem_through_the_command_line(tiny_filesystem, capsys
     # A 128 x 128 still's compressed NPZ (float maps, ~0.5 MB raw) does not fit in 64 KiB,
     # whatever fits before it.
     args = ["still", "--set", "image.width=128", "--set", "image.height=128",
-            "--set", "observer.kind=distant", "--set", "disk.orders=1", "--quiet",
+            "--set", "observer.placement=distant", "--set", "disk.orders=1", "--quiet",
             "--output-dir", tiny_filesystem]
     status, _, err = run_cli(args, capsys)
     assert_one_error_line(status, 1, err, "No space left on device")
@@ -170,7 +170,7 @@ def test_a_dead_worker_through_the_command_line_exits_1(tmp_path, capsys, monkey
 
 def write_sequence_scene(folder, name="film"):
     path = folder / f"{name}.yaml"
-    path.write_text("image:\n  width: 16\n  height: 16\nobserver:\n  kind: distant\n"
+    path.write_text("image:\n  width: 16\n  height: 16\nobserver:\n  placement: distant\n"
                     "animation:\n  frames: 2\n", encoding="utf-8")
     return path
 

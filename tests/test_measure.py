@@ -24,7 +24,7 @@ QUICK = ["--set", "image.width=64", "--set", "image.height=64", "--set", "measur
 def kerr_edge_on():
     """a = 0.99 seen edge-on, 256x256, transparent disk with 3 orders, measured once."""
     scene = default_scene(**{
-        "black_hole.spin": 0.99, "observer.kind": "distant", "observer.inclination": 90.0,
+        "black_hole.spin": 0.99, "observer.placement": "distant", "observer.inclination": 90.0,
         "observer.field_of_view": 16.0, "image.width": 256, "image.height": 256,
         "disk.surface": "transparent", "disk.orders": 3, "measure.directions": 256})
     return scene, measure_scene(scene)
@@ -124,7 +124,7 @@ def test_ring_sizes_from_the_order_map_agree_with_the_cut(schwarzschild_cut):
     # The order-1 image read off a 128x128 order map must agree with the bisected edges
     # along a cut (face-on Schwarzschild is circularly symmetric) to about a pixel.
     scene = default_scene(**{
-        "black_hole.spin": 0.0, "observer.kind": "distant", "observer.inclination": 0.0,
+        "black_hole.spin": 0.0, "observer.placement": "distant", "observer.inclination": 0.0,
         "observer.field_of_view": 16.0, "image.width": 128, "image.height": 128,
         "disk.surface": "transparent", "disk.orders": 2, "disk.outer_radius": 20.0})
     result = render_still(scene)
@@ -194,7 +194,7 @@ def test_command_refuses_to_overwrite(tmp_path, capsys):
 
 
 def test_measure_error_is_raised_for_a_tiny_field_of_view():
-    scene = default_scene(**{"observer.kind": "distant", "observer.field_of_view": 4.0,
+    scene = default_scene(**{"observer.placement": "distant", "observer.field_of_view": 4.0,
                              "image.width": 16, "image.height": 16})
     with pytest.raises(MeasureError, match="field of view"):
         measure_scene(scene)

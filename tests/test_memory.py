@@ -37,13 +37,13 @@ MODES = {
                           "observing.colour_exposure": "fixed",
                           "observing.colour_reference": 1e10,
                           "emission.limb_darkening": "electron_scattering"},
-    "camera-rolled": {"observer.kind": "camera", "observer.distance": 60.0,
+    "camera-rolled": {"observer.placement": "camera", "observer.distance": 60.0,
                       "observer.roll": 30.0, "disk.surface": "opaque"},
 }
 
 
 def small(**values):
-    base = {"image.width": 24, "image.height": 19, "observer.kind": "distant",
+    base = {"image.width": 24, "image.height": 19, "observer.placement": "distant",
             "disk.orders": 3, "disk.surface": "transparent", "black_hole.spin": 0.8}
     base.update(values)
     return default_scene(**base)
@@ -99,7 +99,7 @@ def test_band_grid_is_the_full_grid_bit_for_bit(roll):
 def test_command_line_tiles_under_a_small_budget(tmp_path, capsys):
     # 128 x 128 with 2 orders needs ~14 MB untiled (render.imaging.tiling's model), more than
     # the 0.01 GB budget: the command renders in tiles and writes the same files.
-    common = ["still", "--set", "observer.kind=distant", "--set", "image.width=128",
+    common = ["still", "--set", "observer.placement=distant", "--set", "image.width=128",
               "--set", "image.height=128", "--quiet"]
     status, _, err = run_cli(common + ["--output-dir", tmp_path / "whole"], capsys)
     assert status == 0, err
@@ -372,7 +372,7 @@ def test_8192_square_still_stays_under_the_default_budget(tmp_path):
 def test_tiled_still_without_maps_stores_no_nan_maps(tmp_path):
     # maps=False with the closed form: phi and delay are NaN views, also when tiled, and
     # the rest equals the untiled render (tiling is bookkeeping, common practice).
-    scene = small(**{"tracing.method": "closed-form"})
+    scene = small(**{"tracing.method": "closed_form"})
     whole = render_still(scene, maps=False)
     tiled = render_still(scene, maps=False, memory_budget=3e5, workdir=tmp_path)
     try:

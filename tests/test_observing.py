@@ -136,7 +136,7 @@ def test_disk_reaches_border(cells, expected):
 
 def test_shade_bolometric_is_g4_times_emitted_intensity_summed_over_orders():
     scene = default_scene(**{"image.width": 2, "image.height": 2, "emission.index": 2.5,
-                             "observer.kind": "distant"})
+                             "observer.placement": "distant"})
     obs = prepare_observation(scene)
     r = np.array([[8.0, 15.0], [12.0, np.nan], [np.nan, np.nan], [30.0, 5.0]])
     g = np.array([[0.9, 1.2], [0.7, np.nan], [np.nan, np.nan], [1.1, 0.8]])

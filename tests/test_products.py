@@ -163,7 +163,7 @@ def test_png16_from_a_memory_map(tmp_path):
 @pytest.fixture(scope="module")
 def monochromatic_still():
     # 16 x 16 distant observer, one order (closed form): small and quick.
-    scene = default_scene(**{"image.width": 16, "image.height": 16, "observer.kind": "distant",
+    scene = default_scene(**{"image.width": 16, "image.height": 16, "observer.placement": "distant",
                              "observing.mode": "monochromatic", "emission.law": "novikov_thorne",
                              "observing.frequency": 1e15, "output.fits": True,
                              "disk.orders": 1, "tracing.method": "auto"})

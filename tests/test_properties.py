@@ -190,7 +190,7 @@ def scenes(draw):
     width = draw(sizes)
     values = {
         "black_hole.spin": spin, "observer.inclination": inclination,
-        "observer.kind": kind, "observer.frame": frame,
+        "observer.placement": kind, "observer.frame": frame,
         "observer.field_of_view": draw(fields_of_view),
         "image.width": width, "image.height": draw(sizes),
         "disk.inner_radius": "isco" if inner == isco_radius(spin) else inner,

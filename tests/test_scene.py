@@ -103,6 +103,12 @@ BAD_SCENES = [
     ("invalid-yaml-tab", "black_hole:\n\tspin: 0.5\n", ["not valid scene YAML", "line 2"]),
     ("repeated-key", "black_hole:\n  spin: 0.5\n  spin: 0.7\n", ["spin", "twice", "line 3"]),
     ("non-text-key", "7: 0.5\n", ["7", "keys are text"]),
+    # Renamed keys and common synonyms point at the key meant.
+    ("renamed-selector", "observer:\n  kind: distant\n", ["observer.kind", "'observer.placement'"]),
+    ("synonym-fov", "observer:\n  fov: 30\n", ["observer.fov", "'observer.field_of_view'"]),
+    # A misspelt value is answered like a misspelt key.
+    ("misspelt-method", "tracing:\n  method: closed-form\n", ["tracing.method", "'closed_form'?"]),
+    ("misspelt-mode", "observing:\n  mode: truecolour\n", ["observing.mode", "'true_colour'?"]),
     # One key in both spellings (issue: accepted silently before).
     ("dotted-and-nested-key", "black_hole:\n  spin: 0.5\nblack_hole.spin: -0.5\n",
      ["black_hole.spin", "twice"]),
@@ -169,7 +175,7 @@ def test_missing_file_is_refused(tmp_path, capsys, no_tracing):
 BAD_OVERRIDES = [
     ("unknown-key", ["bogus.key=1"], ["bogus.key", "'1'"]),
     ("misspelt-key", ["black_hole.spn=0.5"], ["black_hole.spn", "black_hole.spin"]),
-    ("section-as-key", ["observer=3"], ["observer", "observer.kind"]),
+    ("section-as-key", ["observer=3"], ["observer", "observer.placement"]),
     ("no-equals", ["black_hole.spin"], ["black_hole.spin", "dotted.key=value"]),
     ("bad-value", ["black_hole.spin=fast"], ["black_hole.spin", "'fast'"]),
     ("empty-value", ["black_hole.spin="], ["black_hole.spin", "''"]),
@@ -245,11 +251,11 @@ def test_file_name_is_the_default_output_name(tmp_path):
 
 def test_overrides_are_parsed_as_yaml(tmp_path):
     scene = default_scene(["black_hole.spin=-0.5", "image.width=0x10", "output.png=false",
-                           "disk.inner_radius=isco", "observer.kind=distant"])
+                           "disk.inner_radius=isco", "observer.placement=distant"])
     assert scene.spin == -0.5
     assert scene["image.width"] == 16 and isinstance(scene["image.width"], int)  # YAML 1.1 hex
     assert scene["output.png"] is False
-    assert scene["observer.kind"] == "distant"
+    assert scene["observer.placement"] == "distant"
 
 
 def test_integral_float_is_accepted_for_an_int_key():
@@ -285,8 +291,8 @@ def test_zamo_may_sit_inside_the_ergoregion_where_static_may_not():
 
 
 def test_observer_distance_is_not_checked_for_a_distant_observer():
-    scene = default_scene(**{"observer.kind": "distant", "observer.distance": 1.2})
-    assert scene["observer.kind"] == "distant"
+    scene = default_scene(**{"observer.placement": "distant", "observer.distance": 1.2})
+    assert scene["observer.placement"] == "distant"
 
 
 def test_document_round_trips_through_scene_from_dict():
@@ -335,25 +341,25 @@ def _png_bytes(width, height):
 
 # Cases that need a second file beside the scene: (id, scene text, {file name: bytes}, fragments).
 BAD_SCENES_WITH_FILES = [
-    ("sky-image-not-2-to-1", "sky:\n  kind: image\n  image: sky.png\n",
+    ("sky-image-not-2-to-1", "sky:\n  backdrop: image\n  image: sky.png\n",
      {"sky.png": _png_bytes(30, 20)}, ["sky.image", "'sky.png'", "30 x 20", "2:1"]),
-    ("sky-image-not-an-image", "sky:\n  kind: image\n  image: sky.png\n",
+    ("sky-image-not-an-image", "sky:\n  backdrop: image\n  image: sky.png\n",
      {"sky.png": b"certainly not a picture"}, ["sky.image", "'sky.png'", "cannot be read"]),
-    ("sky-image-missing", "sky:\n  kind: image\n  image: absent.png\n", {},
+    ("sky-image-missing", "sky:\n  backdrop: image\n  image: absent.png\n", {},
      ["sky.image", "'absent.png'", "No such file"]),
-    ("sky-image-is-a-folder", "sky:\n  kind: image\n  image: sub\n", {"sub/keep": b""},
+    ("sky-image-is-a-folder", "sky:\n  backdrop: image\n  image: sub\n", {"sub/keep": b""},
      ["sky.image", "'sub'"]),
-    ("sky-image-not-given", "sky:\n  kind: image\n", {}, ["sky.kind", "'image'", "sky.image"]),
-    ("sky-negative-star-density", "sky:\n  kind: stars\n  star_density: -1\n", {},
+    ("sky-image-not-given", "sky:\n  backdrop: image\n", {}, ["sky.backdrop", "'image'", "sky.image"]),
+    ("sky-negative-star-density", "sky:\n  backdrop: stars\n  star_density: -1\n", {},
      ["sky.star_density", "-1", "0 <= star_density <= 50"]),
-    ("sky-negative-seed", "sky:\n  kind: stars\n  seed: -3\n", {},
+    ("sky-negative-seed", "sky:\n  backdrop: stars\n  seed: -3\n", {},
      ["sky.seed", "-3", "0 <= seed"]),
     ("sky-fractional-seed", "sky:\n  seed: 1.5\n", {}, ["sky.seed", "1.5", "whole number"]),
-    ("sky-unknown-kind", "sky:\n  kind: nebula\n", {}, ["sky.kind", "'nebula'", "stars"]),
-    ("sky-for-a-distant-observer", "observer:\n  kind: distant\nsky:\n  kind: stars\n", {},
-     ["sky.kind", "'stars'", "observer.kind", "'camera'"]),
-    ("sky-in-line-mode", "sky:\n  kind: stars\nobserving:\n  mode: line\n", {},
-     ["sky.kind", "observing.mode", "'line'"]),
+    ("sky-unknown-kind", "sky:\n  backdrop: nebula\n", {}, ["sky.backdrop", "'nebula'", "stars"]),
+    ("sky-for-a-distant-observer", "observer:\n  placement: distant\nsky:\n  backdrop: stars\n", {},
+     ["sky.backdrop", "'stars'", "observer.placement", "'camera'"]),
+    ("sky-in-line-mode", "sky:\n  backdrop: stars\nobserving:\n  mode: line\n", {},
+     ["sky.backdrop", "observing.mode", "'line'"]),
     ("supersampling-zero", "image:\n  supersampling: 0\n", {},
      ["image.supersampling", "0", "1 <= supersampling <= 8"]),
     ("supersampling-too-large", "image:\n  supersampling: 9\n", {},
@@ -368,7 +374,7 @@ BAD_SCENES_WITH_FILES = [
      ["image.refine_threshold", "0", "0 < refine_threshold <= 1"]),
     ("preview-not-a-bool", "image:\n  preview: maybe\n", {}, ["image.preview", "'maybe'"]),
     # A sky is tiled when the white is fixed, not with the automatic colour exposure.
-    ("sky-in-a-tiled-still-with-auto-exposure", "sky:\n  kind: stars\nobserving:\n"
+    ("sky-in-a-tiled-still-with-auto-exposure", "sky:\n  backdrop: stars\nobserving:\n"
      "  mode: true_colour\nemission:\n  law: novikov_thorne\ntracing:\n  memory_budget: 0.01\n",
      {}, ["512 x 512", "tracing.memory_budget = 0.01 GB", "colour_exposure = 'auto'",
           "whole image"]),

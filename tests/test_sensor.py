@@ -40,7 +40,7 @@ def sky_scene(sky_path, **values):
             "observer.distance": DISTANCE, "observer.frame": "static",
             "observer.inclination": 60.0, "observer.field_of_view": FOV,
             "disk.inner_radius": R_INNER, "disk.outer_radius": 3e4,
-            "sky.kind": "image", "sky.image": str(sky_path), "sky.brightness": SKY_LEVEL}
+            "sky.backdrop": "image", "sky.image": str(sky_path), "sky.brightness": SKY_LEVEL}
     base.update(values)
     return default_scene(**base)
 
@@ -173,7 +173,7 @@ def test_tent_offsets_have_the_tent_distribution():
 def test_stars_only_behind_escaped_rays_and_counted():
     still = render_still(default_scene(**{
         "image.width": 48, "image.height": 48, "observer.field_of_view": 300.0,
-        "sky.kind": "stars", "sky.star_density": 20.0, "sky.seed": 3}))
+        "sky.backdrop": "stars", "sky.star_density": 20.0, "sky.seed": 3}))
     composite = still.products["composite"]
     blocked = still.fate != 0
     assert blocked.sum() > 4
@@ -184,7 +184,7 @@ def test_stars_only_behind_escaped_rays_and_counted():
     assert (composite > still.intensity).sum() > 10
     again = render_still(default_scene(**{
         "image.width": 48, "image.height": 48, "observer.field_of_view": 300.0,
-        "sky.kind": "stars", "sky.star_density": 20.0, "sky.seed": 3}))
+        "sky.backdrop": "stars", "sky.star_density": 20.0, "sky.seed": 3}))
     assert np.array_equal(again.pixels, still.pixels)
 
 
@@ -204,7 +204,7 @@ def test_transparent_disk_adds_its_orders_over_the_sky(white_sky):
 
 def test_preview_is_small_low_order_and_writes_only_a_png(tmp_path, capsys):
     status, out, err = run_cli(["still", "--preview", "--output-dir", tmp_path,
-                                "--set", "sky.kind=stars"], capsys)
+                                "--set", "sky.backdrop=stars"], capsys)
     assert status == 0, err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["default-preview.png"]
     with Image.open(tmp_path / "default-preview.png") as image:
@@ -236,7 +236,7 @@ def test_example_outreach_scenes_are_valid_and_the_preview_renders(tmp_path, cap
 
     scenes = Path(__file__).resolve().parents[1] / "scenes"
     full = load_scene(scenes / "outreach-corvid.yaml")
-    assert full["sky.kind"] == "stars" and full["image.supersampling"] == 3
+    assert full["sky.backdrop"] == "stars" and full["image.supersampling"] == 3
     status, out, err = run_cli(["still", scenes / "preview-corvid.yaml", "--output-dir",
                                 tmp_path], capsys)
     assert status == 0, err
@@ -245,7 +245,7 @@ def test_example_outreach_scenes_are_valid_and_the_preview_renders(tmp_path, cap
 
 
 def test_a_sky_is_not_sent_to_a_cluster_in_bands(tmp_path, capsys, no_tracing):
-    status, out, err = run_cli(["still", "--set", "sky.kind=stars", "--scheduler",
+    status, out, err = run_cli(["still", "--set", "sky.backdrop=stars", "--scheduler",
                                 "tcp://127.0.0.1:9", "--output-dir", tmp_path / "out"], capsys)
     assert status == 2 and err.count("\n") == 1 and "--scheduler" in err and "sky" in err
     assert not (tmp_path / "out").exists()
@@ -267,14 +267,14 @@ def test_a_sequence_frame_of_a_resting_camera_matches_the_still():
     from render.film.sequence import plan_sequence
 
     scene = default_scene(**{"image.width": 40, "image.height": 24, "animation.frames": 1,
-                             "observer.field_of_view": 200.0, "sky.kind": "stars",
+                             "observer.field_of_view": 200.0, "sky.backdrop": "stars",
                              "sky.star_density": 20.0, "image.supersampling": 2})
     frame = render_frame(plan_sequence(scene).jobs[0])
     still = render_still(scene)
     assert np.array_equal(frame.pixels, still.pixels)
     assert (still.pixels != render_still(default_scene(**{
         **{k: scene[k] for k in ("image.width", "image.height", "observer.field_of_view")},
-        "sky.kind": "none"})).pixels).any()
+        "sky.backdrop": "none"})).pixels).any()
 
 
 def test_preview_keeps_a_looser_tolerance_and_the_api_honours_the_flag():
@@ -297,7 +297,7 @@ def test_supersampled_still_with_an_automatic_exposure_is_refused_in_tiles(no_tr
     from render.errors import SceneError
 
     scene = default_scene(**{"image.width": 64, "image.height": 48, "image.supersampling": 2,
-                             "sky.kind": "stars", "observing.mode": "true_colour",
+                             "sky.backdrop": "stars", "observing.mode": "true_colour",
                              "emission.law": "novikov_thorne",
                              "observing.colour_exposure": "auto"})
     with pytest.raises(SceneError, match="whole image at once") as refused:
@@ -320,7 +320,7 @@ TILED_SENSOR = {
 
 
 def _tiled_sensor_scene(case):
-    return default_scene(**{"image.width": 40, "image.height": 40, "sky.kind": "stars",
+    return default_scene(**{"image.width": 40, "image.height": 40, "sky.backdrop": "stars",
                             "image.supersampling": 2, "image.adaptive": True,
                             **TILED_SENSOR[case]})
 
@@ -407,7 +407,7 @@ def test_tiled_still_with_a_panorama_and_full_supersampling_equals_the_untiled_o
     from render.imaging.sky import sample_panorama_image
 
     Image.fromarray(sample_panorama_image(32, seed=4)).save(tmp_path / "sky.png")
-    scene = default_scene(**{"image.width": 40, "image.height": 40, "sky.kind": "image",
+    scene = default_scene(**{"image.width": 40, "image.height": 40, "sky.backdrop": "image",
                              "sky.image": str(tmp_path / "sky.png"), "sky.brightness": 2.0,
                              "observer.distance": 40.0, "observer.field_of_view": 60.0,
                              "image.supersampling": 2, "image.adaptive": False})

@@ -106,7 +106,7 @@ def test_a_sky_makes_the_tile_count_its_halo_rows():
     # With a sky each band is traced with halo rows around it; with a budget that leaves
     # room for few rows, the plan with a sky holds fewer rows per band.
     plain = check_memory(values(**{"image.width": 1000, "image.height": 1000}), budget_bytes=4e7)
-    sky = check_memory(values(**{"image.width": 1000, "image.height": 1000, "sky.kind": "stars"}),
+    sky = check_memory(values(**{"image.width": 1000, "image.height": 1000, "sky.backdrop": "stars"}),
                        budget_bytes=4e7)
     assert sky.rows_per_tile < plain.rows_per_tile
     assert sky.tile_bytes <= 0.25 * sky.budget_bytes

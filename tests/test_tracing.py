@@ -27,11 +27,11 @@ TIGHT = 1e-11
 
 
 @pytest.mark.parametrize("method,kind,expected", [
-    ("auto", "distant", "closed-form"),
+    ("auto", "distant", "closed_form"),
     ("auto", "camera", "integrate"),
     ("integrate", "distant", "integrate"),
     ("integrate", "camera", "integrate"),
-    ("closed-form", "distant", "closed-form"),
+    ("closed_form", "distant", "closed_form"),
 ])
 def test_resolve_method_table(method, kind, expected):
     assert resolve_method(method, kind) == expected
@@ -39,14 +39,14 @@ def test_resolve_method_table(method, kind, expected):
 
 def test_closed_form_for_a_camera_is_refused_in_one_line():
     with pytest.raises(ValueError) as info:
-        resolve_method("closed-form", "camera")
+        resolve_method("closed_form", "camera")
     message = str(info.value)
     assert "\n" not in message
-    assert "observer.kind: distant" in message and "'camera'" in message
+    assert "observer.placement: distant" in message and "'camera'" in message
 
 
 def test_unknown_methods_are_refused():
-    with pytest.raises(ValueError, match="closed-form"):
+    with pytest.raises(ValueError, match="closed_form"):
         resolve_method("shooting", "distant")
     bundle = distant_observer_rays(ALPHA[:1], BETA[:1], 0.0, 60.0)
     # trace() takes resolved methods only: "auto" must have been resolved before.
@@ -62,7 +62,7 @@ def both_methods(request):
     common = dict(spin=spin, inclination_deg=inclination, orders=3, want_escape=True)
     integrated = trace(TraceSettings(method="integrate", tolerance=TIGHT, **common), ALPHA, BETA,
                        bundle)
-    closed = trace(TraceSettings(method="closed-form", **common), ALPHA, BETA, bundle)
+    closed = trace(TraceSettings(method="closed_form", **common), ALPHA, BETA, bundle)
     return spin, bundle, integrated, closed
 
 

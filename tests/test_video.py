@@ -21,7 +21,7 @@ def orbit_sequence(tmp_path_factory):
         "image.width": 32, "image.height": 18, "animation.frames": 6, "output.npz": False,
         "animation.camera_path": "orbit", "observer.distance": 30.0,
         "observer.inclination": 75.0, "observer.field_of_view": 30.0,
-        "animation.time_step": 15.0, "animation.fps": 12.0, "pattern.kind": "spot",
+        "animation.time_step": 15.0, "animation.fps": 12.0, "pattern.shape": "spot",
         "pattern.size": 2.0, "pattern.contrast": 20.0})
     return render_sequence(scene, tmp_path_factory.mktemp("video"))
 

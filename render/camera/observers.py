@@ -2,7 +2,7 @@
 
 Two observers are provided.
 
-Distant observer (``kind: distant``)
+Distant observer (``placement: distant``)
     An observer at infinity at polar angle ``theta_o`` (the inclination) and
     azimuth ``phi_o``.  Image-plane coordinates (alpha, beta), in units of M,
     follow Bardeen (1973): alpha grows to the right, beta along the projected
@@ -15,7 +15,7 @@ Distant observer (``kind: distant``)
     dtheta/dsigma = -beta (Bardeen 1973, eqs. 2.8-2.11).  With a > 0 the side of
     the disk that approaches the observer appears at alpha < 0.
 
-Camera (``kind: camera``)
+Camera (``placement: camera``)
     An observer at finite Boyer–Lindquist radius ``r_o`` carrying an
     orthonormal frame, either
 
@@ -53,7 +53,7 @@ from ..spacetime.motion import boost_frame
 
 __all__ = [
     "Viewpoint",
-    "OBSERVER_KINDS",
+    "PLACEMENTS",
     "RayBundle",
     "image_plane_grid",
     "distant_observer_rays",
@@ -63,8 +63,8 @@ __all__ = [
     "FRAMES",
 ]
 
-# Observer kinds: the exact observer at infinity, or a camera at a finite radius.
-OBSERVER_KINDS = ("camera", "distant")
+# Observer placements: a camera at a finite radius, or the exact observer at infinity.
+PLACEMENTS = ("camera", "distant")
 FRAMES = ("zamo", "static")
 # Below this |sin(theta)| an observer counts as sitting on the spin axis, where
 # the Boyer–Lindquist phi direction is undefined and is chosen per ray instead.
@@ -402,7 +402,7 @@ class Viewpoint:
 
     Attributes
     ----------
-    kind : {"distant", "camera"}
+    placement : {"distant", "camera"}
         The exact observer at infinity, or a camera at Boyer–Lindquist radius ``distance``.
     spin : float
         a/M.
@@ -420,7 +420,7 @@ class Viewpoint:
         Pixels across and down.
     """
 
-    kind: str
+    placement: str
     spin: float
     distance: float
     inclination_deg: float
@@ -441,7 +441,7 @@ class Viewpoint:
 
         ``velocity`` is a moving camera's velocity in its frame (:func:`camera_rays`).
         """
-        if self.kind == "distant":
+        if self.placement == "distant":
             return distant_observer_rays(x, y, self.spin, self.inclination_deg, self.azimuth_deg)
         return camera_rays(x, y, self.spin, self.distance, self.inclination_deg,
                            self.azimuth_deg, self.frame, velocity=velocity)

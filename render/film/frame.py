@@ -105,11 +105,11 @@ def _shade_traced(scene, job, bundle, raw):
     spin = scene.spin
     g, hits = shining_crossings(scene, raw, bundle)
     observation = prepare_observation(scene)
-    if scene["pattern.kind"] != "none":
-        camera_radius = None if scene["observer.kind"] == "distant" else scene["observer.distance"]
+    if scene["pattern.shape"] != "none":
+        camera_radius = None if scene["observer.placement"] == "distant" else scene["observer.distance"]
         t_em = emission_time(job.coordinate_time, raw["delay"], raw["r"], spin, camera_radius)
         factor = pattern_factor(
-            scene["pattern.kind"], raw["r"], raw["phi"], t_em, spin,
+            scene["pattern.shape"], raw["r"], raw["phi"], t_em, spin,
             radius=scene["pattern.radius"], phase_deg=scene["pattern.phase"],
             size=scene["pattern.size"], contrast=scene["pattern.contrast"],
             arms=scene["pattern.arms"], pitch_deg=scene["pattern.pitch"])

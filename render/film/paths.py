@@ -57,7 +57,7 @@ def camera_states(scene, scenes, tracks, path, step, frames):
         A path that no camera can follow (inside the horizon, faster than light...).
     """
     clocks = [k * step for k in range(frames)]
-    if scene["observer.kind"] == "distant":
+    if scene["observer.placement"] == "distant":
         return [(c, c, None, None) for c in clocks]
     if path == "still":
         return _still_states(scene.spin, scenes, clocks, step)

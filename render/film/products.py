@@ -50,7 +50,7 @@ def write_sequence_products(folder, plan, manifest):
     paths["sheet"] = write_png(folder / "sequence_sheet.png",
                                contact_sheet(frames, labels=labels), overwrite=True)
     fluxes = [manifest["frames"][f"{k:05d}"]["flux"] for k in range(count)]
-    distant = plan.scene["observer.kind"] == "distant"
+    distant = plan.scene["observer.placement"] == "distant"
     unit = "retarded time u" if distant else "camera proper time"
     paths["lightcurve_csv"] = _write_light_curve_csv(folder / "lightcurve.csv", plan.jobs, fluxes)
     paths["lightcurve_png"] = write_light_curve_png(folder / "lightcurve.png", clocks, fluxes,

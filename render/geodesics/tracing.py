@@ -79,28 +79,28 @@ def energy_signs(bundle):
     return np.where(ratio < 0.0, -1.0, 1.0)
 
 
-METHODS = ("integrate", "closed-form", "auto")
+METHODS = ("integrate", "closed_form", "auto")
 
 
 def resolve_method(method, observer_kind="distant"):
-    """The transfer method actually used: ``"integrate"`` or ``"closed-form"``.
+    """The transfer method actually used: ``"integrate"`` or ``"closed_form"``.
 
     ``"auto"`` picks the closed form where it is valid, i.e. for a distant (static,
     at infinity) observer looking at nothing but the equatorial disk, and the
     integrator otherwise (a camera at finite distance).  Asking for
-    ``"closed-form"`` with an observer it cannot describe is an error.
+    ``"closed_form"`` with an observer it cannot describe is an error.
 
     Examples
     --------
     >>> resolve_method("auto", "distant"), resolve_method("auto", "camera")
-    ('closed-form', 'integrate')
+    ('closed_form', 'integrate')
     """
     if method not in METHODS:
         raise ValueError(f"method must be one of {', '.join(METHODS)}, got {method!r}")
     if method == "auto":
-        return "closed-form" if observer_kind == "distant" else "integrate"
-    if method == "closed-form" and observer_kind != "distant":
-        raise ValueError("method 'closed-form' needs a distant observer (observer.kind: "
+        return "closed_form" if observer_kind == "distant" else "integrate"
+    if method == "closed_form" and observer_kind != "distant":
+        raise ValueError("method 'closed_form' needs a distant observer (observer.placement: "
                          f"distant), got {observer_kind!r}; use 'integrate' or 'auto'")
     return method
 
@@ -164,7 +164,7 @@ class TraceSettings:
     ----------
     spin : float
         a/M.
-    method : {"integrate", "closed-form"}
+    method : {"integrate", "closed_form"}
         Already resolved (:func:`resolve_method`); the closed form needs a distant observer.
     inclination_deg : float
         The distant observer's inclination (the closed form's starting point).
@@ -205,19 +205,19 @@ def trace(settings, alpha, beta, bundle, progress=None, maps=True):
     --------
     >>> from render.camera.observers import distant_observer_rays
     >>> a, b = np.array([0.0]), np.array([20.0])
-    >>> settings = TraceSettings(spin=0.0, method="closed-form", orders=1)
+    >>> settings = TraceSettings(spin=0.0, method="closed_form", orders=1)
     >>> raw = trace(settings, a, b, distant_observer_rays(a, b, 0.0, 0.0))
     >>> bool(raw["r"][0, 0] > 19.0)
     True
     """
-    if settings.method == "closed-form":
+    if settings.method == "closed_form":
         return closed_form_bundle(alpha, beta, bundle, settings.spin, settings.inclination_deg,
                                   n_record=settings.orders, max_crossings=settings.max_crossings,
                                   stop_on_disk=settings.stop_on_disk, r_in=settings.r_in,
                                   r_out=settings.r_out, want_end=settings.want_escape,
                                   want_maps=maps, progress=progress)
     if settings.method != "integrate":
-        raise ValueError(f"settings.method must be 'integrate' or 'closed-form' (resolved), "
+        raise ValueError(f"settings.method must be 'integrate' or 'closed_form' (resolved), "
                          f"got {settings.method!r}")
     return trace_bundle(bundle, settings.spin, n_record=settings.orders,
                         tolerance=settings.tolerance, max_steps=settings.max_steps,

@@ -20,7 +20,7 @@ of :mod:`render.imaging.still`:
    equatorial crossings (disk orders, photon rings) or in displayed
    brightness by more than ``image.refine_threshold`` are refined (the
    shadow edge, the disk edges, the rings); the others keep their centre ray.
-3. **Stars** (``sky.kind: stars``): point sources splatted with their
+3. **Stars** (``sky.backdrop: stars``): point sources splatted with their
    magnification from the pixel-centre rays (:func:`render.imaging.sky.splat_stars`);
    they are not supersampled (their images are already placed to sub-pixel
    accuracy and flux-conserving).
@@ -72,21 +72,21 @@ def _scene_error(message):
 
 def needs_sensor(scene):
     """Whether a still has a sky or supersampling (and so goes through :func:`finish_still`)."""
-    return scene["sky.kind"] != "none" or scene["image.supersampling"] > 1
+    return scene["sky.backdrop"] != "none" or scene["image.supersampling"] > 1
 
 
 def check_sensor(values):
     """Cross-key checks of the sky and anti-aliasing keys (called by scene validation)."""
-    kind = values["sky.kind"]
+    backdrop = values["sky.backdrop"]
     mode = values["observing.mode"]
-    if kind != "none" and values["observer.kind"] != "camera":
-        raise _scene_error(f"sky.kind = {kind!r} needs observer.kind = 'camera' (a distant "
-                           "observer's whole image lies within a vanishing solid angle of the "
-                           "sky)")
-    if kind == "image" and values["sky.image"] is None:
-        raise _scene_error("sky.kind = 'image' needs sky.image, an equirectangular (2:1) "
+    if backdrop != "none" and values["observer.placement"] != "camera":
+        raise _scene_error(f"sky.backdrop = {backdrop!r} needs observer.placement = 'camera' "
+                           "(a distant observer's whole image lies within a vanishing solid "
+                           "angle of the sky)")
+    if backdrop == "image" and values["sky.image"] is None:
+        raise _scene_error("sky.backdrop = 'image' needs sky.image, an equirectangular (2:1) "
                            "panorama file")
-    for key, active in (("sky.kind", kind != "none"),
+    for key, active in (("sky.backdrop", backdrop != "none"),
                         ("image.supersampling", values["image.supersampling"] > 1)):
         if active and mode not in SENSOR_MODES:
             raise _scene_error(f"{key} = {values[key]!r} needs observing.mode = "
@@ -103,7 +103,7 @@ def check_untiled(values, plan):
     plan on their own.
     """
 
-    if (plan.tiles > 1 and (values["sky.kind"] != "none" or values["image.supersampling"] > 1)
+    if (plan.tiles > 1 and (values["sky.backdrop"] != "none" or values["image.supersampling"] > 1)
             and not is_tileable(values)):
         raise _scene_error(
             f"image.width x image.height = {values['image.width']} x {values['image.height']} "
@@ -137,7 +137,7 @@ def halo_rows(rows, height):
 class Sky:
     """A prepared sky: the panorama (linear RGB) or the star field, and its settings."""
 
-    kind: str
+    backdrop: str
     panorama: np.ndarray = None
     stars: object = None
     source: str = None
@@ -167,11 +167,11 @@ def prepare_sky(scene):
     file); results are cached, so the render reuses them.
     """
 
-    kind = scene["sky.kind"]
-    if kind == "none":
-        return Sky(kind)
-    if kind == "stars":
-        return Sky(kind, stars=_stars(float(scene["sky.star_density"]), int(scene["sky.seed"])))
+    backdrop = scene["sky.backdrop"]
+    if backdrop == "none":
+        return Sky(backdrop)
+    if backdrop == "stars":
+        return Sky(backdrop, stars=_stars(float(scene["sky.star_density"]), int(scene["sky.seed"])))
     path = scene.side_file("sky.image")
     try:
         stat = path.stat()
@@ -181,7 +181,7 @@ def prepare_sky(scene):
                            f"{exc.strerror or exc}") from None
     except SkyImageError as exc:
         raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc}") from None
-    return Sky(kind, panorama=texture, source=str(path))
+    return Sky(backdrop, panorama=texture, source=str(path))
 
 
 # --- Anti-aliasing ----------------------------------------------------------------------
@@ -351,9 +351,9 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ow
     white = _white(observation, scene, shaded) if white is None else float(white)
     centre_dirs = None
     composite = _disk_radiance(observation, shaded).copy()
-    if sky.kind != "none":
+    if sky.backdrop != "none":
         centre_dirs = _sky_directions(scene, bundle, raw)
-    if sky.kind == "image":
+    if sky.backdrop == "image":
         composite += _panorama_radiance(sky, observation, raw, bundle, scene, white,
                                         centre_dirs)
     info = dict(shaded.info)
@@ -361,9 +361,9 @@ def finish_still(scene, observation, shaded, raw, bundle, alpha, beta, trace, ow
     if scene["image.supersampling"] > 1:
         info["antialias"] = _supersample(scene, observation, sky, white, composite, samples,
                                          raw, alpha, beta, rows, trace, velocity)
-    if sky.kind != "none":
+    if sky.backdrop != "none":
         info["sky"] = _sky_info(scene, sky)
-        if sky.kind == "stars":
+        if sky.backdrop == "stars":
             info["sky"].update(_add_stars(scene, observation, sky, composite, white, bundle,
                                           centre_dirs, alpha, beta, rows))
     return _finished(observation, scene, shaded, composite, samples, white, info)
@@ -430,7 +430,7 @@ def _supersample(scene, observation, sky, white, composite, samples, raw, alpha,
         sub_bundle = scene.viewpoint().rays_at(x, y, velocity)
         sub_raw, sub_shaded = trace(x, y, sub_bundle)
         value = _disk_radiance(observation, sub_shaded)
-        if sky.kind == "image":
+        if sky.backdrop == "image":
             value = value + _panorama_radiance(sky, observation, sub_raw, sub_bundle, scene,
                                                white, _sky_directions(scene, sub_bundle, sub_raw))
         composite[chosen] = value.reshape(chosen.size, n * n, -1).mean(axis=1)
@@ -448,10 +448,10 @@ def _supersample(scene, observation, sky, white, composite, samples, raw, alpha,
 
 def _sky_info(scene, sky):
     """The metadata of a still's sky that does not depend on the band."""
-    info = {"kind": sky.kind,
+    info = {"backdrop": sky.backdrop,
             "convention": "equirectangular: row 0 at theta = 0 (spin axis), phi grows "
                           "to the left, phi = 0 at the left and right edges"}
-    if sky.kind == "image":
+    if sky.backdrop == "image":
         info.update({"image": sky.source, "brightness": scene["sky.brightness"]})
     return info
 

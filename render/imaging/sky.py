@@ -64,12 +64,12 @@ from ..light.cie import blackbody_xyz_at_log
 from ..geodesics.integrator import deferred_interrupts
 from ..light.cie import blackbody_xyz_table
 
-__all__ = ["SKY_KINDS", "StarField", "inverse_magnification", "sky_vectors", "load_panorama",
+__all__ = ["BACKDROPS", "StarField", "inverse_magnification", "sky_vectors", "load_panorama",
            "sample_panorama", "star_field", "splat_stars", "pixel_solid_angle",
            "camera_vectors", "sample_panorama_image", "SkyImageError",
            "BRIGHTEST_MAGNITUDE", "FAINTEST_MAGNITUDE"]
 
-SKY_KINDS = ("none", "stars", "image")
+BACKDROPS = ("none", "stars", "image")
 # Magnitude range of the procedural stars (flux ratio 10^3.2 between the ends).
 BRIGHTEST_MAGNITUDE = 0.0
 FAINTEST_MAGNITUDE = 8.0

@@ -134,7 +134,7 @@ def check_memory(values, budget_bytes=None):
     # A band with a sky or supersampling is traced with up to 2 HALO_ROWS + 1 more
     # rows (render.imaging.sensor.halo_rows): the tile's memory includes them.
     halo = 0
-    if values["sky.kind"] != "none" or values["image.supersampling"] > 1:
+    if values["sky.backdrop"] != "none" or values["image.supersampling"] > 1:
 
         halo = 2 * HALO_ROWS + 1
     if picture > budget * (1.0 - TILE_SHARE) or (1 + halo) * row > budget * TILE_SHARE:

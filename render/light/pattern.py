@@ -93,13 +93,13 @@ def emission_time(observer_time, delay, r_em, spin, observer_radius=None):
     return t_em
 
 
-def pattern_factor(kind, r, phi, t_em, spin, *, radius=8.0, phase_deg=0.0, size=1.0,
+def pattern_factor(shape, r, phi, t_em, spin, *, radius=8.0, phase_deg=0.0, size=1.0,
                    contrast=1.0, arms=2, pitch_deg=20.0):
     """Emission multiplier 1 + contrast P(r, phi, t_em) of a co-moving pattern.
 
     Parameters
     ----------
-    kind : {"none", "spot", "spiral"}
+    shape : {"none", "spot", "spiral"}
     r, phi, t_em : array_like
         Disk crossing radius (M), Boyer–Lindquist azimuth (rad) and emission time (M).
     spin : float
@@ -117,21 +117,21 @@ def pattern_factor(kind, r, phi, t_em, spin, *, radius=8.0, phase_deg=0.0, size=
     4.0
     """
     r = np.asarray(r, dtype=float)
-    if kind == "none":
+    if shape == "none":
         return np.ones_like(r)
     phi = np.asarray(phi, dtype=float)
     t_em = np.asarray(t_em, dtype=float)
     phase = np.radians(phase_deg)
     with np.errstate(invalid="ignore"):
-        if kind == "spot":
+        if shape == "spot":
             angle = phase + keplerian_angular_velocity(radius, spin) * t_em
             d2 = r * r + radius * radius - 2.0 * r * radius * np.cos(phi - angle)
             shape = np.exp(-np.maximum(d2, 0.0) / (2.0 * size * size))
-        elif kind == "spiral":
+        elif shape == "spiral":
             omega = keplerian_angular_velocity(np.maximum(r, 1e-300), spin)
             psi = arms * (phi - omega * t_em - phase) - arms * np.log(r) / np.tan(
                 np.radians(pitch_deg))
             shape = (0.5 * (1.0 + np.cos(psi))) ** 2
         else:
-            raise ValueError(f"pattern kind must be one of {', '.join(PATTERNS)}, got {kind!r}")
+            raise ValueError(f"pattern shape must be one of {', '.join(PATTERNS)}, got {shape!r}")
     return 1.0 + contrast * shape

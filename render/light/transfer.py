@@ -33,7 +33,7 @@ def trace_points(alpha, beta, *, spin, inclination_deg, max_orders=3, tolerance=
         Relative tolerance of the integrator (default 1e-9).
     max_steps, max_crossings : int
         Caps per ray; a ray that reaches one gets the fate "unresolved".
-    method : {"integrate", "closed-form", "auto"}
+    method : {"integrate", "closed_form", "auto"}
         Numerical integration, or the elliptic-integral solution of
         :mod:`render.geodesics.closed_form` (``"auto"``: the closed form, valid for this
         distant observer); ``tolerance`` and ``max_steps`` apply to the integrator.
@@ -48,7 +48,7 @@ def trace_points(alpha, beta, *, spin, inclination_deg, max_orders=3, tolerance=
         ``fate`` (N,) strings "escaped", "captured" or "unresolved" (the ray
         followed to its end); ``n_crossings`` (N,) all crossings met;
         ``theta_end``, ``phi_end`` the escape direction; ``method`` (N,) strings,
-        the method used ("integrate" or "closed-form").
+        the method used ("integrate" or "closed_form").
 
     References
     ----------

@@ -487,7 +487,7 @@ def parse_tolerances(items):
 
 
 def _analytic(scene):
-    distance = None if scene["observer.kind"] == "distant" else scene["observer.distance"]
+    distance = None if scene["observer.placement"] == "distant" else scene["observer.distance"]
     kwargs = {"distance": distance, "frame": scene["observer.frame"]}
     moments = shadow_moments(scene.spin, scene["observer.inclination"], **kwargs)
     curve = critical_curve(scene.spin, scene["observer.inclination"], **kwargs)

@@ -9,10 +9,10 @@ name added there is accepted here without a second list to keep in step.
 import math
 from dataclasses import dataclass
 
-from ..camera.observers import FRAMES, OBSERVER_KINDS
+from ..camera.observers import FRAMES, PLACEMENTS
 from ..geodesics.tracing import METHODS
 from ..imaging.sensor import FILTERS
-from ..imaging.sky import SKY_KINDS
+from ..imaging.sky import BACKDROPS
 from ..light.disk import SURFACES
 from ..light.emission import EMISSION_LAWS, LIMB_DARKENING_LAWS
 from ..light.observing import COLOUR_EXPOSURES, MODES
@@ -20,7 +20,7 @@ from ..light.pattern import PATTERNS
 from ..light.thermal import ACCRETION_UNITS
 from ..units import ANGLE_UNITS
 
-__all__ = ["KeySpec", "KEYS", "SECTIONS", "keys_reference", "CAMERA_PATHS", "INTERPOLATIONS",
+__all__ = ["KeySpec", "KEYS", "SECTIONS", "SYNONYMS", "keys_reference", "CAMERA_PATHS", "INTERPOLATIONS",
            "KEYFRAME_SECTIONS", "MAX_KEYFRAMES", "MAX_PIXELS_SIDE"]
 
 MAX_PIXELS_SIDE = 65536
@@ -62,9 +62,9 @@ KEYS = {spec.path: spec for spec in [
     _k("black_hole.distance", "float", 1.15e4, "pc", "0 < distance <= 1e10",
        "Distance from the observer to the hole in parsecs (for angular sizes and fluxes).",
        low=0.0, high=1e10, low_open=True),
-    _k("observer.kind", "choice", "camera", "-", "camera, distant",
+    _k("observer.placement", "choice", "camera", "-", "camera, distant",
        "camera: a physical observer at finite distance; distant: the exact observer at infinity.",
-       choices=OBSERVER_KINDS),
+       choices=PLACEMENTS),
     _k("observer.distance", "float", 1000.0, "M", "outside the horizon (zamo) or the ergoregion "
        "(static), at most 1e9", "Boyer–Lindquist radius of the camera (camera only).",
        low=0.0, high=1e9, low_open=True),
@@ -162,11 +162,11 @@ KEYS = {spec.path: spec for spec in [
     _k("observing.line_high", "float", 1.6, "E/E0", "line_low < line_high <= 100",
        "High edge of the line bins in units of the rest energy.", low=0.0, high=100.0,
        low_open=True),
-    _k("sky.kind", "choice", "none", "-", "none, stars, image",
+    _k("sky.backdrop", "choice", "none", "-", "none, stars, image",
        "Background at infinity for a camera: none (black), stars (procedural point sources) or "
-       "image (an equirectangular panorama).", choices=SKY_KINDS),
+       "image (an equirectangular panorama).", choices=BACKDROPS),
     _k("sky.image", "path", None, "-", "a 2:1 image file (relative to the scene file)",
-       "Equirectangular panorama of sky.kind image (row 0 along the spin axis)."),
+       "Equirectangular panorama of sky.backdrop image (row 0 along the spin axis)."),
     _k("sky.brightness", "float", 0.05, "x white", "0 <= brightness <= 1e6",
        "Panorama level: a white panorama pixel shows at brightness x the disk's white.",
        low=0.0, high=1e6),
@@ -178,9 +178,9 @@ KEYS = {spec.path: spec for spec in [
        low=0.0, high=50.0),
     _k("sky.seed", "int", 1, "-", "0 <= seed <= 4294967295",
        "Seed of the star field (the same seed gives the same stars).", low=0, high=2**32 - 1),
-    _k("tracing.method", "choice", "integrate", "-", "integrate, closed-form, auto",
-       "integrate: Dormand–Prince integration; closed-form: elliptic-integral solution "
-       "(distant observer only; docs/closed_form.md); auto: closed-form where valid.",
+    _k("tracing.method", "choice", "integrate", "-", "integrate, closed_form, auto",
+       "integrate: Dormand–Prince integration; closed_form: elliptic-integral solution "
+       "(distant observer only; docs/closed_form.md); auto: the closed form where valid.",
        choices=METHODS),
     _k("tracing.tolerance", "float", 1e-9, "-", "1e-14 <= tolerance <= 1e-3",
        "Relative tolerance of the adaptive Dormand–Prince 5(4) step control.",
@@ -225,7 +225,7 @@ KEYS = {spec.path: spec for spec in [
     _k("animation.keyframes", "keyframes", (), "-", "a list of {frame: n, dotted.key: number, "
        "interpolation: ...}", "Values of numeric observer, black_hole, disk, emission or "
        "pattern keys at given frames, in increasing frame order."),
-    _k("pattern.kind", "choice", "none", "-", "none, spot, spiral",
+    _k("pattern.shape", "choice", "none", "-", "none, spot, spiral",
        "Brightness pattern moving with the gas: a Gaussian spot on a Keplerian orbit, or "
        "spiral arms turning at the local Keplerian angular velocity.",
        choices=PATTERNS),
@@ -258,6 +258,25 @@ KEYS = {spec.path: spec for spec in [
 ]}
 
 SECTIONS = sorted({p.split(".")[0] for p in KEYS if "." in p})
+
+# Names people reach for, and names of earlier versions, with the key they mean: an
+# unknown key is matched here before by spelling ("did you mean ...?").
+SYNONYMS = {
+    "observer.kind": "observer.placement", "observer.type": "observer.placement",
+    "observer.fov": "observer.field_of_view", "observer.field": "observer.field_of_view",
+    "observer.r": "observer.distance", "observer.radius": "observer.distance",
+    "observer.theta": "observer.inclination", "observer.phi": "observer.azimuth",
+    "black_hole.a": "black_hole.spin", "black_hole.m": "black_hole.mass",
+    "disk.r_in": "disk.inner_radius", "disk.r_out": "disk.outer_radius",
+    "disk.rin": "disk.inner_radius", "disk.rout": "disk.outer_radius",
+    "image.resolution": "image.width", "image.size": "image.width",
+    "image.antialias": "image.supersampling", "image.samples": "image.supersampling",
+    "sky.kind": "sky.backdrop", "sky.type": "sky.backdrop", "sky.background": "sky.backdrop",
+    "pattern.kind": "pattern.shape", "pattern.type": "pattern.shape",
+    "emission.emissivity": "emission.index", "emission.q": "emission.index",
+    "tracing.rtol": "tracing.tolerance", "tracing.accuracy": "tracing.tolerance",
+    "animation.fps_out": "animation.fps", "animation.length": "animation.duration",
+}
 
 
 def keys_reference():

@@ -19,8 +19,7 @@ import yaml
 
 from ..errors import SceneError
 from ..camera.observers import Viewpoint, check_observer_position
-from .keys import (CAMERA_PATHS, INTERPOLATIONS, KEYFRAME_SECTIONS, KEYS, MAX_KEYFRAMES,
-                   MAX_PIXELS_SIDE, SECTIONS, keys_reference)
+from .keys import (INTERPOLATIONS, KEYFRAME_SECTIONS, KEYS, MAX_KEYFRAMES, SECTIONS, SYNONYMS)
 from ..geodesics.tracing import TraceSettings, resolve_method
 from ..spacetime.kerr import horizon_radii, isco_radius
 from ..imaging.sensor import check_sensor, check_untiled
@@ -101,7 +100,7 @@ class Scene:
     def viewpoint(self):
         """The observer set-up of this scene (:class:`render.camera.observers.Viewpoint`)."""
         v = self.values
-        return Viewpoint(kind=v["observer.kind"], spin=self.spin, distance=v["observer.distance"],
+        return Viewpoint(placement=v["observer.placement"], spin=self.spin, distance=v["observer.distance"],
                          inclination_deg=v["observer.inclination"],
                          azimuth_deg=v["observer.azimuth"], frame=v["observer.frame"],
                          field_of_view=v["observer.field_of_view"], roll_deg=v["observer.roll"],
@@ -115,12 +114,12 @@ class Scene:
         """
         v = self.values
         return TraceSettings(
-            spin=self.spin, method=resolve_method(v["tracing.method"], v["observer.kind"]),
+            spin=self.spin, method=resolve_method(v["tracing.method"], v["observer.placement"]),
             inclination_deg=v["observer.inclination"], orders=v["disk.orders"],
             tolerance=v["tracing.tolerance"], max_steps=v["tracing.max_steps"],
             max_crossings=v["tracing.max_crossings"],
             stop_on_disk=v["disk.surface"] == "opaque", r_in=self.inner_radius,
-            r_out=v["disk.outer_radius"], want_escape=v["sky.kind"] != "none")
+            r_out=v["disk.outer_radius"], want_escape=v["sky.backdrop"] != "none")
 
 
 def _describe(value):
@@ -148,7 +147,7 @@ def _coerce(spec, value):
         return value
     if spec.kind == "choice":
         if value not in spec.choices:
-            _fail(key, value, f"one of: {', '.join(spec.choices)}")
+            _fail(key, value, f"one of: {', '.join(spec.choices)}{_suggest_value(value, spec)}")
         return value
     if spec.kind == "path":
         if value is None:
@@ -245,6 +244,8 @@ def _is_finite(value):
 
 
 def _suggest(key):
+    if key in SYNONYMS:
+        return f" (did you mean '{SYNONYMS[key]}'?)"
     if key in SECTIONS:
         first = next(p for p in KEYS if p.startswith(key + "."))
         return f" ('{key}' is a section; give its keys, e.g. '{first}')"
@@ -254,6 +255,18 @@ def _suggest(key):
         leaves = {p.rsplit(".", 1)[-1]: p for p in KEYS}
         near = difflib.get_close_matches(leaf, list(leaves), n=1, cutoff=0.6)
         close = [leaves[near[0]]] if near else []
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+def _suggest_value(value, spec):
+    """`` (did you mean 'x'?)`` for a misspelt choice: by spelling, '-' read as '_', any case."""
+    if not isinstance(value, str):
+        return ""
+    canonical = {choice.replace("-", "_").lower(): choice for choice in spec.choices}
+    wanted = value.strip().replace("-", "_").replace(" ", "_").lower()
+    close = ([canonical[wanted]] if wanted in canonical else
+             [canonical[c] for c in difflib.get_close_matches(wanted, list(canonical), n=1,
+                                                              cutoff=0.6)])
     return f" (did you mean '{close[0]}'?)" if close else ""
 
 
@@ -309,16 +322,16 @@ def _check_consistency(values):
     if not values["disk.outer_radius"] > inner:
         _fail("disk.outer_radius", values["disk.outer_radius"],
               f"a radius larger than the inner edge ({inner:.6g} M)")
-    if values["observer.kind"] == "camera":
+    if values["observer.placement"] == "camera":
         try:
             check_observer_position(spin, values["observer.distance"],
                                     values["observer.inclination"], values["observer.frame"])
         except ValueError as exc:
             raise SceneError(f"observer.distance = {values['observer.distance']!r} is not "
                              f"allowed; {exc}") from None
-    if values["tracing.method"] == "closed-form" and values["observer.kind"] != "distant":
-        _fail("tracing.method", "closed-form",
-              "integrate or auto with observer.kind: camera (the closed form needs a distant "
+    if values["tracing.method"] == "closed_form" and values["observer.placement"] != "distant":
+        _fail("tracing.method", "closed_form",
+              "integrate or auto with observer.placement: camera (the closed form needs a distant "
               "observer)")
 
     check_observing(values)
@@ -351,15 +364,15 @@ def _check_animation(values, inner):
     if keyframes and frames is not None and keyframes[-1]["frame"] >= frames:
         raise SceneError(f"animation.keyframes sets frame {keyframes[-1]['frame']}, but the "
                          f"sequence has {frames} frames (0..{frames - 1})")
-    if values["animation.camera_path"] != "still" and values["observer.kind"] != "camera":
+    if values["animation.camera_path"] != "still" and values["observer.placement"] != "camera":
         raise SceneError(f"animation.camera_path = {values['animation.camera_path']!r} needs "
-                         "observer.kind = 'camera' (a distant observer cannot move)")
-    if values["pattern.kind"] != "none":
+                         "observer.placement = 'camera' (a distant observer cannot move)")
+    if values["pattern.shape"] != "none":
         if values["observing.mode"] != "bolometric":
-            raise SceneError(f"pattern.kind = {values['pattern.kind']!r} needs observing.mode = "
+            raise SceneError(f"pattern.shape = {values['pattern.shape']!r} needs observing.mode = "
                              f"'bolometric' (got {values['observing.mode']!r})")
         radius = values["pattern.radius"]
-        if values["pattern.kind"] == "spot" and not inner <= radius <= values["disk.outer_radius"]:
+        if values["pattern.shape"] == "spot" and not inner <= radius <= values["disk.outer_radius"]:
             _fail("pattern.radius", radius, f"a radius on the disk, {inner:.6g} M to "
                   f"{values['disk.outer_radius']:.6g} M")
 
