@@ -13,6 +13,7 @@ import pytest
 import yaml
 from PIL import Image
 
+import render
 import render.geodesics.closed_form
 import render.geodesics.tracing
 from conftest import run_cli
@@ -424,3 +425,54 @@ def test_the_frame_trace_cache_keeps_the_methods_apart(monkeypatch):
     again = render_frame(integrated_job)
     assert len(integrator) == traced  # same view and method: the cache is used
     assert np.array_equal(first.pixels, again.pixels)
+
+
+# --- trace once per film: the symmetry of Kerr in t and phi --------------------------------
+
+def _symmetric_films():
+    orbit = render.load_scene(Path(__file__).resolve().parents[1] / "scenes" / "orbit-kestrel.yaml",
+                              ["image.width=32", "image.height=18", "animation.frames=4"])
+    distant = default_scene(name="turning", **{
+        "image.width": 24, "image.height": 24, "observer.placement": "distant",
+        "pattern.shape": "spiral", "disk.surface": "transparent", "animation.frames": 3,
+        "animation.keyframes": [{"frame": 0, "observer.azimuth": 0.0},
+                                {"frame": 2, "observer.azimuth": 250.0}]})
+    return {"orbiting-camera": orbit, "distant-turning": distant}
+
+
+@pytest.mark.parametrize("which", ["orbiting-camera", "distant-turning"])
+def test_a_film_that_only_turns_traces_once_and_equals_tracing_each_frame(which, monkeypatch):
+    # Kerr is stationary and axisymmetric (Carter 1968): frames whose observers differ
+    # only by a shift in t and phi see the same rays, turned.  Frames made from one
+    # trace must equal frames traced one by one: r, g, delay to 1e-12, phi modulo 2 pi
+    # to 1e-12 (a few ulps of the added angle), 8-bit pixels equal.
+    import render.film.frame as frame
+    from render.geodesics.tracing import trace
+    from render.light.disk import redshift_factor
+
+    calls = []
+    monkeypatch.setattr(frame, "trace", lambda *a, **k: calls.append(1) or trace(*a, **k))
+    frame._TRACE_CACHE.clear()
+    plan = plan_sequence(_symmetric_films()[which])
+    assert len({job.scene["observer.azimuth"] for job in plan.jobs}) == len(plan.jobs)
+    for job in plan.jobs:
+        bundle, raw = frame._trace(job.scene, job.velocity)
+        alpha, beta, direct_bundle = job.scene.viewpoint().rays(velocity=job.velocity)
+        direct = trace(job.scene.trace_settings(), alpha, beta, direct_bundle)
+        assert np.array_equal(raw["fate"], direct["fate"])
+        for name in ("r", "delay"):
+            assert np.allclose(raw[name], direct[name], rtol=1e-12, atol=1e-12, equal_nan=True)
+        turn = np.angle(np.exp(1j * (raw["phi"] - direct["phi"])))
+        assert np.all(np.isnan(raw["phi"]) == np.isnan(direct["phi"]))
+        assert np.nanmax(np.abs(turn), initial=0.0) < 1e-12
+        g = redshift_factor(raw["r"], bundle.lam[:, None], job.scene.spin,
+                            bundle.energy_ratio[:, None])
+        g_direct = redshift_factor(direct["r"], direct_bundle.lam[:, None], job.scene.spin,
+                                   direct_bundle.energy_ratio[:, None])
+        assert np.allclose(g, g_direct, rtol=1e-12, equal_nan=True)
+        pixels = []
+        for b, r in ((bundle, raw), (direct_bundle, direct)):
+            observation, shaded = frame._shade_traced(job.scene, job, b, r)
+            pixels.append(frame._frame_pixels(job.scene, job, observation, shaded, r, b))
+        assert np.array_equal(pixels[0], pixels[1])
+    assert len(calls) == 1   # the film traced once (the direct traces above bypass it)

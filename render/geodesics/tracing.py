@@ -12,11 +12,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..camera.observers import distant_observer_rays
 from .closed_form import closed_form_bundle
-from .integrator import (FATE_ESCAPED, FATE_NAMES, deferred_interrupts, trace_rays,
+from .integrator import (FATE_ESCAPED, deferred_interrupts, trace_rays,
                          trace_to_infinity)
-from ..spacetime.kerr import capture_radius, check_spin
+from ..spacetime.kerr import capture_radius
 
 __all__ = ["TraceSettings", "trace", "trace_bundle", "escape_directions", "resolve_method",
            "METHODS", "DEFAULT_TOLERANCE"]
@@ -43,7 +42,11 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
     """
     u_capture = 1.0 / capture_radius(spin)
     total = bundle.lam.size
-    states = bundle.states
+    # Every ray starts at azimuth 0 and its own azimuth is added to the results: phi is
+    # in the step control, so an offset would change the steps, and the rays of two
+    # observers that differ only in azimuth would differ at the tolerance instead of
+    # by a turn (the metric does not depend on phi).
+    start_phi, states = _azimuth_removed(bundle.states)
     energy_sign = energy_signs(bundle)
     names = ("r", "phi", "delay", "inward", "fate", "n_crossings", "steps",
              "theta_end", "phi_end", "final_state")
@@ -65,7 +68,26 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
             progress(stop, total)
     if not final_state:
         del parts["final_state"]
-    return {name: np.concatenate(chunks) for name, chunks in parts.items()}
+    raw = {name: np.concatenate(chunks) for name, chunks in parts.items()}
+    return _azimuth_restored(raw, start_phi)
+
+
+def _azimuth_removed(states):
+    """(starting azimuths, states with azimuth 0)."""
+    start_phi = np.array(states[:, 4], dtype=float)
+    states = np.array(states, dtype=float)
+    states[:, 4] = 0.0
+    return start_phi, states
+
+
+def _azimuth_restored(raw, start_phi):
+    """Add each ray's starting azimuth back to the azimuths of a trace (modulo 2 pi)."""
+    two_pi = 2.0 * np.pi
+    raw["phi"] = np.mod(raw["phi"] + start_phi[:, None], two_pi)
+    raw["phi_end"] = np.mod(raw["phi_end"] + start_phi, two_pi)
+    if "final_state" in raw:
+        raw["final_state"][:, 4] += start_phi
+    return raw
 
 
 def energy_signs(bundle):
@@ -147,12 +169,13 @@ def escape_directions(bundle, raw, spin, tolerance, max_steps=100000):
     u_capture = 1.0 / capture_radius(spin)
     t = np.empty(rows.size)
     p = np.empty(rows.size)
+    start_phi, start_states = _azimuth_removed(start[rows])   # as in trace_bundle
     with deferred_interrupts():
-        trace_to_infinity(np.ascontiguousarray(start[rows]), np.ascontiguousarray(lam[rows]),
+        trace_to_infinity(np.ascontiguousarray(start_states), np.ascontiguousarray(lam[rows]),
                           np.ascontiguousarray(eta[rows]), float(spin), u_capture,
                           float(tolerance), int(max_steps), t, p)
     theta[rows] = t
-    phi[rows] = p
+    phi[rows] = np.mod(p + start_phi, 2.0 * np.pi)
     return theta, phi
 
 
