@@ -328,7 +328,8 @@ def test_render_still_method_choice_and_agreement(small_scene):
     # where both put the crossing on the same side of the disk edges (common practice:
     # the closed form is checked against the integrator above to 1e-8 in r and g).
     integrated = render_still(small_scene(**{"black_hole.spin": 0.9,
-                                             "observer.inclination": 60.0}))
+                                             "observer.inclination": 60.0,
+                                             "tracing.method": "integrate"}))
     closed = render_still(small_scene(**{"black_hole.spin": 0.9, "observer.inclination": 60.0,
                                          "tracing.method": "auto"}))
     assert integrated.metadata["tracing_method"] == "integrate"
@@ -345,7 +346,7 @@ def test_render_still_opaque_disk_closed_form(small_scene):
     # Opaque disk: the ray ends at its first crossing on the disk (fate 2), as the
     # integrator does (render.geodesics.integrator: stop_on_disk).
     values = {"disk.surface": "opaque", "black_hole.spin": 0.5, "observer.inclination": 75.0}
-    integrated = render_still(small_scene(**values))
+    integrated = render_still(small_scene(**values, **{"tracing.method": "integrate"}))
     closed = render_still(small_scene(**values, **{"tracing.method": "closed_form"}))
     agree = closed.fate == integrated.fate
     assert agree.mean() > 0.99

@@ -129,7 +129,7 @@ def turned_trace(bundle, raw, angle):
     >>> b = RayBundle(np.zeros((1, 6)), np.zeros(1), np.zeros(1), np.ones(1), 0.0)
     >>> _, out = turned_trace(b, {"phi": np.array([[6.0]]), "r": np.array([[7.0]])}, 1.0)
     >>> round(float(out["phi"][0, 0]), 12), float(out["r"][0, 0])
-    (0.716814692820, 7.0)
+    (0.71681469282, 7.0)
     """
     if angle == 0.0:
         return bundle, raw

@@ -178,9 +178,10 @@ KEYS = {spec.path: spec for spec in [
        low=0.0, high=50.0),
     _k("sky.seed", "int", 1, "-", "0 <= seed <= 4294967295",
        "Seed of the star field (the same seed gives the same stars).", low=0, high=2**32 - 1),
-    _k("tracing.method", "choice", "integrate", "-", "integrate, closed_form, auto",
-       "integrate: Dormand–Prince integration; closed_form: elliptic-integral solution "
-       "(distant observer only; docs/closed_form.md); auto: the closed form where valid.",
+    _k("tracing.method", "choice", "auto", "-", "auto, integrate, closed_form",
+       "auto: the closed form where valid (a distant observer), else integrate; integrate: "
+       "Dormand–Prince integration; closed_form: the elliptic-integral solution (distant "
+       "observer only; docs/closed_form.md).",
        choices=METHODS),
     _k("tracing.tolerance", "float", 1e-9, "-", "1e-14 <= tolerance <= 1e-3",
        "Relative tolerance of the adaptive Dormand–Prince 5(4) step control.",
