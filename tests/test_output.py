@@ -55,11 +55,12 @@ def test_interrupt_in_the_middle_leaves_the_old_file(tmp_path):
 def test_npz_failure_in_the_middle_leaves_no_file(tmp_path, monkeypatch):
     target = tmp_path / "maps.npz"
 
-    def broken_savez(handle, **arrays):
-        handle.write(b"PK\x03\x04 truncated zip")
+    def broken_array_writer(handle, array, **options):
+        handle.write(b"\x93NUMPY truncated")
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(output.np, "savez_compressed", broken_savez)
+    # The NPZ's members are written by numpy's .npy writer (render.output.files._stream_npz).
+    monkeypatch.setattr(output.np.lib.format, "write_array", broken_array_writer)
     with pytest.raises(OSError):
         write_npz(target, {"r": np.zeros((2, 2))}, {"scene": {}})
     assert not target.exists()
@@ -173,3 +174,26 @@ def test_file_systems_without_hard_links_still_work(tmp_path, monkeypatch):
                      lambda f: (tmp_path / "late.bin").write_bytes(b"first") or f.write(b"x"))
     assert (tmp_path / "late.bin").read_bytes() == b"first"
     assert leftovers(tmp_path) == []
+
+
+@pytest.mark.parametrize("compression", ["fast", "small", "none"])
+def test_every_npz_compression_reads_back_with_numpy(tmp_path, compression):
+    # np.load reads deflated and stored members alike (common practice: the NPZ format
+    # is a zip of .npy files); "none" stores them, the others deflate.
+    import zipfile
+
+    arrays = {"r": np.linspace(0.0, 1.0, 64).reshape(8, 8), "fate": np.arange(64, dtype=np.int8)}
+    path = write_npz(tmp_path / f"{compression}.npz", arrays, {"a": 1}, compression=compression)
+    with np.load(path) as loaded:
+        assert np.array_equal(loaded["r"], arrays["r"])
+        assert np.array_equal(loaded["fate"], arrays["fate"])
+    with zipfile.ZipFile(path) as archive:
+        kinds = {info.compress_type for info in archive.infolist()}
+    assert kinds == ({zipfile.ZIP_STORED} if compression == "none" else {zipfile.ZIP_DEFLATED})
+
+
+def test_the_npz_compression_key_offers_exactly_the_writer_s_levels():
+    from render.output.files import NPZ_COMPRESSION
+    from render.scene.keys import KEYS
+
+    assert set(KEYS["output.npz_compression"].choices) == set(NPZ_COMPRESSION)

@@ -144,18 +144,27 @@ def write_png(path, pixels, overwrite=False, metadata=None):
     return atomic_write(path, lambda f: image.save(f, format="PNG", pnginfo=info), overwrite)
 
 
-def write_npz(path, arrays, metadata, overwrite=False):
-    """Write arrays plus a JSON ``metadata`` string entry to a compressed NPZ, atomically.
+# Deflate level of each NPZ compression choice (output.npz_compression; zlib levels, 0 =
+# stored).  Level 1 makes the maps of a still about as small as level 6 (within 2% in
+# benchmarks/bench_output.py) in about two thirds of the time.
+NPZ_COMPRESSION = {"fast": 1, "small": 9, "none": 0}
 
-    Arrays that are memory maps of ``.npy`` files (the maps of a still rendered
-    in tiles, :mod:`render.imaging.tiling`) are copied into the archive from their files
+
+def write_npz(path, arrays, metadata, overwrite=False, compression="fast"):
+    """Write arrays plus a JSON ``metadata`` string entry to an NPZ, atomically.
+
+    ``compression`` is one of :data:`NPZ_COMPRESSION` (``np.load`` reads them all).
+    Arrays that are memory maps of ``.npy`` files (the maps of a still rendered in
+    tiles, :mod:`render.imaging.tiling`) are copied into the archive from their files
     in chunks by plain reads, so the write never holds them in memory.
     """
+    if compression not in NPZ_COMPRESSION:
+        raise ValueError(f"compression must be one of {', '.join(NPZ_COMPRESSION)}, "
+                         f"got {compression!r}")
     payload = dict(arrays)
     payload["metadata"] = np.array(json.dumps(metadata, sort_keys=True, default=jsonable))
-    if not any(_npy_file(a) for a in payload.values()):
-        return atomic_write(path, lambda f: np.savez_compressed(f, **payload), overwrite)
-    return atomic_write(path, lambda f: _stream_npz(f, payload), overwrite)
+    level = NPZ_COMPRESSION[compression]
+    return atomic_write(path, lambda f: _stream_npz(f, payload, level), overwrite)
 
 
 STREAM_CHUNK_BYTES = 16 * 1024 * 1024
@@ -173,12 +182,14 @@ def _npy_file(array):
     return None
 
 
-def _stream_npz(handle, payload):
-    """The NPZ layout of ``np.savez_compressed`` (one ``name.npy`` member per array)."""
+def _stream_npz(handle, payload, level=1):
+    """The NPZ layout of ``np.savez`` (one ``name.npy`` member per array), deflated at ``level``."""
     import shutil
     import zipfile
 
-    with zipfile.ZipFile(handle, "w", compression=zipfile.ZIP_DEFLATED, allowZip64=True) as zf:
+    compression = zipfile.ZIP_DEFLATED if level else zipfile.ZIP_STORED
+    with zipfile.ZipFile(handle, "w", compression=compression,
+                         compresslevel=level if level else None, allowZip64=True) as zf:
         for name, array in payload.items():
             with zf.open(f"{name}.npy", "w", force_zip64=True) as member:
                 source = _npy_file(array)
@@ -227,5 +238,6 @@ def write_still(result, folder="outputs", overwrite=False):
                   metadata={"Software": f"nullray {result.metadata['version']}",
                             "nullray-scene": json.dumps(result.metadata["scene"], sort_keys=True)})
     if "npz" in paths:
-        write_npz(paths["npz"], result.maps(), result.metadata, overwrite)
+        write_npz(paths["npz"], result.maps(), result.metadata, overwrite,
+                  compression=result.metadata["scene"]["output"]["npz_compression"])
     return paths

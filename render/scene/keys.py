@@ -197,6 +197,9 @@ KEYS = {spec.path: spec for spec in [
        "fit even so is refused (docs/robustness.md).", low=0.01, high=1024.0),
     _k("output.png", "bool", True, "-", "true, false", "Write the tone-mapped 8-bit PNG."),
     _k("output.npz", "bool", True, "-", "true, false", "Write the per-pixel data maps (NPZ)."),
+    _k("output.npz_compression", "choice", "fast", "-", "fast, small, none",
+       "Deflate the NPZ quickly (level 1), as small as zlib can (level 9), or not at all.",
+       choices=("fast", "small", "none")),   # the levels: render.output.files.NPZ_COMPRESSION
     _k("output.fits", "bool", False, "-", "true, false",
        "Also write the physical maps as FITS (needs a novikov_thorne law or a monochromatic "
        "or line mode; docs/thermal.md)."),
