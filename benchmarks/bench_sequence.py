@@ -7,7 +7,9 @@ Prints ONE line of JSON on stdout (progress goes to stderr)::
 
 The scene is scenes/orbit-kestrel.yaml: a camera on a Keplerian orbit at 40 M
 (spin 0.7, 80 deg), 320 x 180 pixels, opaque disk, a co-moving spot, 120 frames.
-Every frame has its own camera position, so nothing is reused between frames.
+Every frame has its own camera position on the orbit, but the orbit is circular at a
+constant angular velocity, so the frames see the same rays turned about the spin axis:
+each process traces them once and shades every frame (docs/animation.md).
 The two modes run in interleaved rounds (``--rounds``, default 2) and the
 fastest round of each is reported, with its CPU time (this process plus its
 finished child processes; idle numba threads that spin count as CPU time, so
