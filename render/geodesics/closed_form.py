@@ -82,7 +82,7 @@ from .elliptic import (FAST_ARITHMETIC, elliprf, elliprf_rd_rj, elliprj, ellipj_
                        ellipj_work)
 from .radial_integrals import complex_time, real_time
 from .integrator import (FATE_CAPTURED, FATE_DISK, FATE_ESCAPED, FATE_UNRESOLVED,
-                         deferred_interrupts)
+                         parallel_kernel_call)
 from ..camera.observers import polar_position
 from ..spacetime.kerr import capture_radius
 
@@ -519,7 +519,7 @@ def closed_form_bundle(alpha, beta, bundle, spin, inclination_deg, *, n_record,
         stop = min(start + chunk_rays, total)
         # Like the integrator: Ctrl-C is held back during the parallel kernel call
         # (a signal inside it can crash the process) and raised after it.
-        with deferred_interrupts():
+        with parallel_kernel_call():
             arrays = closed_form_crossings(
                 alpha[start:stop], beta[start:stop], phi_o[start:stop], float(spin),
                 float(sin_o), float(cos_o), float(r_capture), int(max_crossings),

@@ -56,6 +56,7 @@ import os
 import signal
 import threading
 
+import numba
 import numpy as np
 from numba import njit, prange
 
@@ -98,6 +99,25 @@ def deferred_interrupts():
             os.kill(os.getpid(), number)   # the default action (SIGTERM ends the process)
         elif callable(handler):
             handler(number, None)
+
+
+# Rays handed to a kernel thread at a time.  Rays differ in cost by orders of magnitude
+# (a grazer of the photon orbit takes thousands of steps), and on a shared machine one
+# thread can be descheduled: equal static shares then leave a core idle, and two threads
+# ran slower than one under load.  Small dynamic chunks keep every thread busy.
+RAYS_PER_CHUNK = 64
+
+
+@contextlib.contextmanager
+def parallel_kernel_call():
+    """Around a parallel tracing kernel: signals deferred, rays handed out in small chunks.
+
+    Combines :func:`deferred_interrupts` with ``numba.parallel_chunksize`` (dynamic
+    scheduling of the kernel's ``prange`` loop in chunks of :data:`RAYS_PER_CHUNK`).
+    The results do not depend on the chunking: every ray is traced on its own.
+    """
+    with deferred_interrupts(), numba.parallel_chunksize(RAYS_PER_CHUNK):
+        yield
 
 
 FATE_ESCAPED = 0

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .closed_form import closed_form_bundle
-from .integrator import (FATE_ESCAPED, deferred_interrupts, trace_rays,
+from .integrator import (FATE_ESCAPED, parallel_kernel_call, trace_rays,
                          trace_to_infinity)
 from ..spacetime.kerr import capture_radius
 
@@ -53,7 +53,7 @@ def trace_bundle(bundle, spin, *, n_record, tolerance=DEFAULT_TOLERANCE, max_ste
     parts = {name: [] for name in names}
     for start in range(0, max(total, 1), chunk_rays):
         stop = min(start + chunk_rays, total)
-        with deferred_interrupts():
+        with parallel_kernel_call():
             arrays = trace_rays(
                 np.ascontiguousarray(states[start:stop]),
                 np.ascontiguousarray(bundle.lam[start:stop]),
@@ -170,7 +170,7 @@ def escape_directions(bundle, raw, spin, tolerance, max_steps=100000):
     t = np.empty(rows.size)
     p = np.empty(rows.size)
     start_phi, start_states = _azimuth_removed(start[rows])   # as in trace_bundle
-    with deferred_interrupts():
+    with parallel_kernel_call():
         trace_to_infinity(np.ascontiguousarray(start_states), np.ascontiguousarray(lam[rows]),
                           np.ascontiguousarray(eta[rows]), float(spin), u_capture,
                           float(tolerance), int(max_steps), t, p)
