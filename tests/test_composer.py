@@ -60,7 +60,8 @@ def test_a_side_file_outside_the_scenes_folder_is_refused(tmp_path):
 def test_the_preview_is_a_render_of_the_same_scene(session, scene_file):
     shown = session.preview({"observer.inclination": "30"}, 64)
     direct = render_still(load_scene(scene_file, [
-        "observer.inclination=30", "image.width=64", "image.height=64", "output.npz=false"]))
+        "observer.inclination=30", "image.width=64", "image.height=64", "output.npz=false",
+        "tracing.tolerance=1e-6"]))
     assert np.array_equal(session.png(shown["id"]), direct.pixels)
 
 

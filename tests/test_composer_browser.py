@@ -112,7 +112,8 @@ def test_the_page_previews_validates_probes_saves_and_renders(composer, browser,
     second = _wait(browser, lambda d: _shown_preview(d) not in (None, first) and _shown_preview(d),
                    "the preview after the change")
     direct = render_still(load_scene(scene_file, [
-        "observer.inclination=30", "image.width=256", "image.height=256", "output.npz=false"]))
+        "observer.inclination=30", "image.width=256", "image.height=256", "output.npz=false",
+        "tracing.tolerance=1e-6"]))
     assert np.array_equal(_shown_pixels(browser), direct.pixels)
 
     # A bad value: the command line's one-line message beside its control; nothing rendered.
