@@ -178,3 +178,34 @@ def test_the_server_answers_only_its_routes(session):
     finally:
         server.shutdown()
         server.server_close()
+
+
+def test_the_command_prints_its_url_serves_and_stops_cleanly_on_ctrl_c(scene_file, tmp_path):
+    import signal
+    import subprocess
+    import sys
+
+    process = subprocess.Popen(
+        [sys.executable, "-m", "render", "compose", str(scene_file), "--output-dir",
+         str(tmp_path / "out")], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        line = process.stdout.readline()
+        assert line.startswith("composer at http://127.0.0.1:"), line
+        url = line.split()[2]
+        assert _fetch(url + "state")[0] == 200
+        process.send_signal(signal.SIGINT)
+        _, errors = process.communicate(timeout=60)
+    finally:
+        if process.poll() is None:
+            process.kill()
+    assert process.returncode == 130
+    assert errors.strip().splitlines()[-1].startswith("nullray: interrupted")
+    assert not (tmp_path / "out").exists()   # nothing written without being asked
+
+
+def test_a_bad_port_is_one_line_with_status_2(capsys):
+    from render.cli import main
+
+    assert main(["compose", "--port", "70000"]) == 2
+    assert capsys.readouterr().err == ("nullray: error: --port 70000 is not allowed; "
+                                       "expected 0 to 65535\n")

@@ -152,6 +152,17 @@ def test_the_page_previews_validates_probes_saves_and_renders(composer, browser,
     assert browser.find_element(By.ID, "still-result").text == "wrote trial.png, trial.npz"
     assert Image.open(output / "trial.png").size == (48, 48)
 
+    # Dragging orbits: 0.5 deg per pixel, up raises the inclination, right lowers the azimuth.
+    before = _shown_preview(browser)
+    ActionChains(browser).drag_and_drop_by_offset(
+        browser.find_element(By.ID, "frame"), 20, -40).perform()
+    _wait(browser, lambda d: _shown_preview(d) not in (None, before)
+          and d.find_element(By.ID, "status").text.startswith("256x256"), "the preview after a drag")
+    assert browser.find_element(By.ID, "control-observer-inclination").get_attribute(
+        "value") == "50.0"
+    assert browser.find_element(By.ID, "control-observer-azimuth").get_attribute(
+        "value") == "-10.0"
+
     screenshot = tmp_path / "composer.png"
     assert browser.save_screenshot(str(screenshot))
     with Image.open(screenshot) as shot:

@@ -23,6 +23,7 @@ Routes
 import io
 import json
 import re
+import socket
 import threading
 from http import HTTPStatus
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
@@ -45,7 +46,11 @@ REFUSALS = (SceneError, UsageError, OutputExists)
 def make_server(session, address="127.0.0.1", port=0):
     """A threading HTTP server for ``session`` bound to ``address:port`` (0: a free port)."""
     handler = type("ComposerHandler", (_Handler,), {"session": session})
-    server = ThreadingHTTPServer((address, port), handler)
+    server_class = ThreadingHTTPServer
+    if ":" in address:   # an IPv6 address such as ::1
+        server_class = type("ComposerServer6", (ThreadingHTTPServer,),
+                            {"address_family": socket.AF_INET6})
+    server = server_class((address, port), handler)
     server.daemon_threads = True
     return server
 
