@@ -209,3 +209,8 @@ def test_a_bad_port_is_one_line_with_status_2(capsys):
     assert main(["compose", "--port", "70000"]) == 2
     assert capsys.readouterr().err == ("nullray: error: --port 70000 is not allowed; "
                                        "expected 0 to 65535\n")
+
+
+def test_an_overlong_value_is_refused_not_cut(session):
+    with pytest.raises(SceneError, match="name is given 300 characters; at most 200"):
+        session.scene_for({"name": "x" * 300})

@@ -31,6 +31,7 @@ from .controls import CONTROL_KEYS, MAX_PREVIEW_SIDE, MAX_STILL_SIDE, control_ta
 __all__ = ["ComposerSession", "Superseded", "preview_values"]
 
 PATH_KEYS = tuple(key for key, spec in KEYS.items() if spec.kind == "path")
+MAX_VALUE_CHARACTERS = 200   # the longest text a control may send
 KEPT_PREVIEWS = 4    # previews whose maps stay for probing (the shown one and a few before)
 
 
@@ -119,7 +120,11 @@ class ComposerSession:
         for key, text in settings.items():
             if key not in CONTROL_KEYS:
                 raise UsageError(f"{str(key)[:60]!r} is not a control of the composer")
-            overrides.append(f"{key}={str(text)[:200]}")
+            text = str(text)
+            if len(text) > MAX_VALUE_CHARACTERS:
+                raise SceneError(f"{key} is given {len(text)} characters; at most "
+                                 f"{MAX_VALUE_CHARACTERS} are allowed")
+            overrides.append(f"{key}={text}")
         document = apply_overrides(copy.deepcopy(self._document), overrides)
         return scene_from_dict(document, source=self.scene.source,
                                default_name=self.scene["name"])
