@@ -64,7 +64,32 @@ def _parser():
     measure.add_argument("--tolerance", dest="tolerances", action="append", default=[],
                          metavar="QUANTITY=VALUE",
                          help="override one tolerance, e.g. area=1e-4 (see docs/measure.md)")
+    compose = commands.add_parser(
+        "compose", help="a live preview of a scene in the browser, with controls (local server)")
+    compose.add_argument("scene", nargs="?", help="YAML scene file (default: built-in default scene)")
+    compose.add_argument("--output-dir", default="outputs", metavar="DIR",
+                         help="folder saved scenes and stills are written to (default: outputs)")
+    compose.add_argument("--address", default="127.0.0.1", metavar="HOST",
+                         help="address to listen on (default: 127.0.0.1, this machine only)")
+    compose.add_argument("--port", type=int, default=0, metavar="N",
+                         help="port to listen on (default: a free one)")
     return parser
+
+
+def _compose(args):
+    from .composer.session import ComposerSession
+    from .composer.server import serve
+
+    if not 0 <= args.port <= 65535:
+        raise UsageError(f"--port {args.port} is not allowed; expected 0 to 65535")
+    session = ComposerSession(args.scene, args.output_dir)
+    try:
+        serve(session, args.address, args.port, announce=lambda url: print(
+            f"composer at {url} (open it in a browser; Ctrl-C stops)", flush=True))
+    except OSError as exc:
+        raise UsageError(f"cannot listen on {args.address}:{args.port}: "
+                         f"{exc.strerror or exc}") from None
+    return 0
 
 
 def _measure(args):
@@ -206,6 +231,8 @@ def _run(args, shown):
                          "--output-dir outputs")
     if args.command == "measure":
         return _measure(args)
+    if args.command == "compose":
+        return _compose(args)
     if args.command == "sequence":
         return _sequence(args)
     return _still(args, shown)
