@@ -33,14 +33,17 @@ __all__ = ["open_scene", "keys_reference", "render_still", "make_still", "render
            "make_measurement"]
 
 
-def open_scene(path=None, overrides=()):
+def open_scene(path=None, overrides=(), *, allow_outside_files=False):
     """The validated scene of a YAML file, or the built-in default scene when ``path`` is None.
 
     ``overrides`` are ``key=value`` strings applied on top (as given to ``--set``);
-    the default scene is named ``default``.
+    the default scene is named ``default``.  A scene file's side files must lie
+    in its folder unless ``allow_outside_files`` (``--allow-outside-files``);
+    side files named in ``overrides`` are the caller's own, read from the
+    current folder (:meth:`render.scene.loader.Scene.side_file`).
     """
     if path:
-        return load_scene(path, overrides)
+        return load_scene(path, overrides, allow_outside_files=allow_outside_files)
     return default_scene(overrides, name="default")
 
 
