@@ -55,7 +55,7 @@ from ..geodesics.tracing import escape_directions
 from ..light.cie import xyz_to_linear_srgb_matrix
 from ..light.color import expose_true_colour, srgb_encode, to_uint16, to_uint8, tone_map
 from ..light.observing import Shaded
-from ..reading import InputFileError, check_regular_file
+from ..guards.reading import InputFileError, check_regular_file
 from .sky import (PanoramaMemoryError, SkyImageError, camera_vectors, load_panorama, sample_panorama, sky_vectors,
                   splat_stars, star_field)
 from .tiling import is_tileable

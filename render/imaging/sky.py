@@ -61,7 +61,7 @@ import numpy as np
 from numba import njit, prange
 
 from ..light.cie import blackbody_xyz_at_log
-from ..reading import InputFileError, open_bounded
+from ..guards.reading import InputFileError, open_bounded
 from ..geodesics.integrator import deferred_interrupts
 from ..light.cie import blackbody_xyz_table
 
@@ -146,7 +146,7 @@ def load_panorama(path, max_bytes=None):
     """Read an equirectangular panorama as linear-light RGB floats (H, W, 3).
 
     The file must be a regular file of at most ``MAX_PANORAMA_FILE_BYTES``
-    (:func:`render.reading.open_bounded`), and its size is checked from the
+    (:func:`render.guards.reading.open_bounded`), and its size is checked from the
     image header *before* anything is decoded, so a small file that declares a
     huge image (a decompression bomb) costs nothing.
 

@@ -14,7 +14,7 @@ register it in ``EMISSION_LAWS`` and describe its scene keys in
 from dataclasses import dataclass
 
 import numpy as np
-from ..reading import InputFileError, read_bounded
+from ..guards.reading import InputFileError, read_bounded
 from .thermal import cgs, diluted_blackbody, page_thorne_flux
 
 __all__ = ["PowerLaw", "NovikovThorne", "RadialProfile", "EmissionTableError", "EMISSION_LAWS",
@@ -120,7 +120,7 @@ def read_profile_table(path):
 
     Lines starting with '#' are comments; one header line of non-numbers is
     allowed.  Only a regular file of at most ``MAX_PROFILE_BYTES`` with at most
-    ``MAX_PROFILE_ROWS`` rows is read (:func:`render.reading.read_bounded`).
+    ``MAX_PROFILE_ROWS`` rows is read (:func:`render.guards.reading.read_bounded`).
     Messages name the file, the line number and what was expected, never the
     file's contents (the path may name a file that is not a table at all).
 

@@ -18,7 +18,7 @@ from pathlib import Path
 import yaml
 
 from ..errors import SceneError
-from ..reading import InputFileError, read_bounded
+from ..guards.reading import InputFileError, read_bounded
 from ..camera.observers import Viewpoint, check_observer_position
 from .keys import (INTERPOLATIONS, KEYFRAME_SECTIONS, KEYS, MAX_KEYFRAMES, SECTIONS, SYNONYMS)
 from ..geodesics.tracing import TraceSettings, resolve_method
@@ -529,7 +529,7 @@ def read_scene_document(path):
     """Read a scene file's mapping, refusing special, oversized, non-UTF-8 or unsafe input.
 
     Only a regular file of at most ``MAX_SCENE_BYTES`` is read
-    (:func:`render.reading.read_bounded`: a FIFO, a device or a folder is
+    (:func:`render.guards.reading.read_bounded`: a FIFO, a device or a folder is
     refused without being opened for a blocking read).
     """
     path = Path(path)

@@ -131,7 +131,7 @@ def read_bounded(path, cap):
     >>> read_bounded("/dev/zero", 100)
     Traceback (most recent call last):
     ...
-    render.reading.InputFileError: is a character device, not a regular file
+    render.guards.reading.InputFileError: is a character device, not a regular file
     >>> os.unlink(name)
     """
     with open_bounded(path, cap) as handle:
