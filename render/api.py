@@ -22,7 +22,8 @@ from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
 from .light.observing import prepare_observation
 from .measure.shadow_measurement import measure_paths, measure_scene, write_measurement
-from .output.files import check_free, still_paths, write_still
+from .output.files import (check_free, published_together, still_paths, sweep_dead_temporaries,
+                           write_still)
 from .output.products import product_paths, write_products
 from .parallel import (auto_workers, capped_workers, check_scheduler, connect, frame_results,
                        render_still_on_cluster)
@@ -33,14 +34,17 @@ __all__ = ["open_scene", "keys_reference", "render_still", "make_still", "render
            "make_measurement"]
 
 
-def open_scene(path=None, overrides=()):
+def open_scene(path=None, overrides=(), *, allow_outside_files=False):
     """The validated scene of a YAML file, or the built-in default scene when ``path`` is None.
 
     ``overrides`` are ``key=value`` strings applied on top (as given to ``--set``);
-    the default scene is named ``default``.
+    the default scene is named ``default``.  A scene file's side files must lie
+    in its folder unless ``allow_outside_files`` (``--allow-outside-files``);
+    side files named in ``overrides`` are the caller's own, read from the
+    current folder (:meth:`render.scene.loader.Scene.side_file`).
     """
     if path:
-        return load_scene(path, overrides)
+        return load_scene(path, overrides, allow_outside_files=allow_outside_files)
     return default_scene(overrides, name="default")
 
 
@@ -86,9 +90,14 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
     Everything that can be refused is refused before any tracing and before the
     folder is made: the emission table and sky image are read, the targets are
     checked free (unless ``overwrite``), the scheduler is reached, and the folder
-    is checked writable.  A still larger than ``tracing.memory_budget`` keeps its
-    maps in temporary files inside the output folder until they are written
-    (:mod:`render.imaging.tiling`); they are removed afterwards.
+    is checked writable.  Temporaries that killed runs left in the folder are
+    swept (:func:`render.output.files.sweep_dead_temporaries`).  A still larger
+    than ``tracing.memory_budget`` keeps its maps in temporary files inside the
+    output folder until they are written (:mod:`render.imaging.tiling`); they
+    are removed afterwards.  All of the still's files are published together
+    at the end (:func:`render.output.files.published_together`): an interrupted
+    or failed write, or a concurrent run of the same name, never leaves a PNG
+    without its NPZ or a set mixed from two scenes.
     """
     if scene["image.preview"]:
         scene = preview_scene(scene)
@@ -103,10 +112,13 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
                              "image.supersampling needs the whole image at once")
         check_scheduler(scheduler)
     _check_writable_folder(folder)
+    sweep_dead_temporaries(folder)   # what runs killed with SIGKILL left behind
     result = render_still(scene, progress, workdir=folder, scheduler=scheduler)
     try:
-        paths = write_still(result, folder, overwrite=overwrite)
-        paths.update(write_products(result, folder, overwrite=overwrite))
+        # The PNG, the NPZ and the products appear together, from this run, or not at all.
+        with published_together(folder):
+            paths = write_still(result, folder, overwrite=overwrite)
+            paths.update(write_products(result, folder, overwrite=overwrite))
     finally:
         result.release()
     return result, paths
@@ -163,6 +175,8 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
     """
     if workers is not None and workers < 1:
         raise UsageError(f"--workers {workers} is not allowed; expected N >= 1")
+    for folder in (Path(output_dir), Path(output_dir) / scene["name"]):
+        sweep_dead_temporaries(folder)   # what runs killed with SIGKILL left behind
     client = connect(scheduler) if scheduler is not None else None
     try:
         def run_frames(jobs):

@@ -17,7 +17,8 @@ EXIT_TERMINATED = 143    # 128 + SIGTERM
 
 
 def _add_common_options(command):
-    """--set, --output-dir and --overwrite, shared by the commands that write files."""
+    """--set, --output-dir, --overwrite and --allow-outside-files, shared by the commands
+    that write files."""
     command.add_argument("--set", dest="overrides", action="append", default=[],
                          metavar="KEY=VALUE",
                          help="override a scene value, e.g. black_hole.spin=0.5")
@@ -25,6 +26,9 @@ def _add_common_options(command):
                          help="folder the files are written to (default: outputs)")
     command.add_argument("--overwrite", action="store_true",
                          help="replace existing output files of the same name")
+    command.add_argument("--allow-outside-files", action="store_true",
+                         help="let the scene file read side files (emission.profile, sky.image) "
+                              "outside its own folder")
 
 
 def _parser():
@@ -109,7 +113,7 @@ def _measure(args):
 def _load(args):
     from .api import open_scene
 
-    return open_scene(args.scene, args.overrides)
+    return open_scene(args.scene, args.overrides, allow_outside_files=args.allow_outside_files)
 
 
 def _still(args, shown=()):

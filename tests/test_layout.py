@@ -15,7 +15,7 @@ import render
 PACKAGE = Path(render.__file__).parent
 # Rooms in import order; a room may import only from rooms earlier in the list.
 ORDER = [
-    {"errors", "units", "about", "progress"},
+    {"errors", "units", "about", "progress", "guards"},
     {"spacetime"}, {"camera"}, {"geodesics"}, {"light"}, {"imaging"}, {"scene"},
     {"output"}, {"film", "measure"}, {"parallel"}, {"api"}, {"composer"}, {"cli"},
     {"__main__", "__init__"},

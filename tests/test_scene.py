@@ -383,7 +383,7 @@ BAD_SCENES_WITH_FILES = [
     ("profile-table-missing", "emission:\n  law: profile\n  profile: absent.csv\n", {},
      ["absent.csv", "No such file"]),
     ("profile-table-not-numbers", "emission:\n  law: profile\n  profile: table.csv\n",
-     {"table.csv": b"r,emissivity\nsix,1.0\n"}, ["table.csv", "row 2", "'six'"]),
+     {"table.csv": b"r,emissivity\nsix,1.0\n"}, ["table.csv", "line 2", "two numbers"]),
     ("profile-table-not-utf8", "emission:\n  law: profile\n  profile: table.csv\n",
      {"table.csv": b"r,emissivity\n6,\xff\n"}, ["table.csv"]),
     ("profile-table-is-a-folder", "emission:\n  law: profile\n  profile: sub\n",

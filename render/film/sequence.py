@@ -62,7 +62,9 @@ def _frame_scene(scene, values, frame):
             value = math.remainder(value, 360.0)
         document[section][leaf] = value
     try:
-        return scene_from_dict(document, source=scene.source, default_name=scene["name"])
+        return scene_from_dict(document, source=scene.source, default_name=scene["name"],
+                               user_paths=scene.user_paths,
+                               allow_outside_files=scene.allow_outside_files)
     except SceneError as exc:
         raise SceneError(f"frame {frame}: {exc}") from None
 

@@ -55,7 +55,8 @@ from ..geodesics.tracing import escape_directions
 from ..light.cie import xyz_to_linear_srgb_matrix
 from ..light.color import expose_true_colour, srgb_encode, to_uint16, to_uint8, tone_map
 from ..light.observing import Shaded
-from .sky import (SkyImageError, camera_vectors, load_panorama, sample_panorama, sky_vectors,
+from ..guards.reading import InputFileError, check_regular_file
+from .sky import (PanoramaMemoryError, SkyImageError, camera_vectors, load_panorama, sample_panorama, sky_vectors,
                   splat_stars, star_field)
 from .tiling import is_tileable
 
@@ -63,6 +64,9 @@ __all__ = ["FILTERS", "SENSOR_MODES", "check_sensor", "prepare_sky", "needs_sens
            "check_untiled", "halo_rows", "subpixel_offsets", "refine_mask", "finish_still"]
 
 FILTERS = ("box", "tent")
+# Share of tracing.memory_budget a decoded sky panorama may take; a tile takes a
+# quarter (render.imaging.tiling.TILE_SHARE), the interpreter and libraries the rest.
+PANORAMA_BUDGET_SHARE = 0.5
 SENSOR_MODES = ("bolometric", "true_colour")
 # What a preview renders (README, "Preview").
 def _scene_error(message):
@@ -144,9 +148,9 @@ class Sky:
 
 
 @functools.lru_cache(maxsize=4)
-def _panorama(path, mtime_ns, size):
+def _panorama(path, mtime_ns, size, max_bytes):
 
-    texture = load_panorama(path)
+    texture = load_panorama(path, max_bytes)
     texture.setflags(write=False)   # shared by every render that uses this file
     return texture
 
@@ -173,12 +177,17 @@ def prepare_sky(scene):
     if backdrop == "stars":
         return Sky(backdrop, stars=_stars(float(scene["sky.star_density"]), int(scene["sky.seed"])))
     path = scene.side_file("sky.image")
+    budget = scene["tracing.memory_budget"]
     try:
-        stat = path.stat()
-        texture = _panorama(str(path), stat.st_mtime_ns, stat.st_size)
-    except OSError as exc:
-        raise _scene_error(f"sky.image = {scene['sky.image']!r} cannot be read: "
-                           f"{exc.strerror or exc}") from None
+        stat = check_regular_file(path)
+        texture = _panorama(str(path), stat.st_mtime_ns, stat.st_size,
+                            budget * 1e9 * PANORAMA_BUDGET_SHARE)
+    except InputFileError as exc:
+        raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc}") from None
+    except PanoramaMemoryError as exc:
+        raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc} (a panorama may use "
+                           f"{PANORAMA_BUDGET_SHARE:.0%} of tracing.memory_budget = {budget:g} "
+                           "GB; use a smaller image or a larger budget)") from None
     except SkyImageError as exc:
         raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc}") from None
     return Sky(backdrop, panorama=texture, source=str(path))

@@ -61,12 +61,13 @@ import numpy as np
 from numba import njit, prange
 
 from ..light.cie import blackbody_xyz_at_log
+from ..guards.reading import InputFileError, open_bounded
 from ..geodesics.integrator import deferred_interrupts
 from ..light.cie import blackbody_xyz_table
 
 __all__ = ["BACKDROPS", "StarField", "inverse_magnification", "sky_vectors", "load_panorama",
            "sample_panorama", "star_field", "splat_stars", "pixel_solid_angle",
-           "camera_vectors", "sample_panorama_image", "SkyImageError",
+           "camera_vectors", "sample_panorama_image", "SkyImageError", "PanoramaMemoryError",
            "BRIGHTEST_MAGNITUDE", "FAINTEST_MAGNITUDE"]
 
 BACKDROPS = ("none", "stars", "image")
@@ -81,10 +82,19 @@ N_THETA_BINS = 180
 N_PHI_BINS = 360
 # Largest panorama read (pixels), so a hostile file cannot exhaust memory.
 MAX_PANORAMA_PIXELS = 64_000_000
+# Largest panorama file read (bytes); a compressed image of the largest size is far smaller.
+MAX_PANORAMA_FILE_BYTES = 256 * 1024 * 1024
+# Peak bytes per pixel while a panorama is decoded: the 8-bit RGB array (3) beside
+# Pillow's image (4) or beside the float64 texture made from it (24), rounded up.
+PANORAMA_BYTES_PER_PIXEL = 32
 
 
 class SkyImageError(ValueError):
     """A panorama that cannot be used; the message is one line for the user."""
+
+
+class PanoramaMemoryError(SkyImageError):
+    """A panorama whose decoded pixels would take more memory than allowed."""
 
 
 # --- Escape directions ------------------------------------------------------------------
@@ -132,13 +142,21 @@ def pixel_solid_angle(x, y, distance, pixel_size):
 # --- Panoramas --------------------------------------------------------------------------
 
 
-def load_panorama(path):
+def load_panorama(path, max_bytes=None):
     """Read an equirectangular panorama as linear-light RGB floats (H, W, 3).
+
+    The file must be a regular file of at most ``MAX_PANORAMA_FILE_BYTES``
+    (:func:`render.guards.reading.open_bounded`), and its size is checked from the
+    image header *before* anything is decoded, so a small file that declares a
+    huge image (a decompression bomb) costs nothing.
 
     Parameters
     ----------
     path : str or Path
         PNG, JPEG or any format Pillow reads; its width must be twice its height.
+    max_bytes : float, optional
+        Memory the decoded panorama may take (``PANORAMA_BYTES_PER_PIXEL`` per
+        pixel at the peak of decoding); a larger one is refused.
 
     Returns
     -------
@@ -147,26 +165,47 @@ def load_panorama(path):
     Raises
     ------
     SkyImageError
-        Unreadable file or an aspect other than 2:1.
+        Not a regular file, unreadable, too large, or an aspect other than 2:1.
     """
     from PIL import Image, UnidentifiedImageError
 
     try:
-        with Image.open(path) as image:
+        with open_bounded(path, MAX_PANORAMA_FILE_BYTES) as handle, Image.open(handle) as image:
             width, height = image.size
-            if width * height > MAX_PANORAMA_PIXELS:
-                raise SkyImageError(f"{width} x {height} pixels is too large (at most "
-                                    f"{MAX_PANORAMA_PIXELS} pixels)")
-            if width != 2 * height:
-                raise SkyImageError(f"is {width} x {height} pixels; an equirectangular "
-                                    "panorama is twice as wide as it is high (2:1)")
-            rgb = np.asarray(image.convert("RGB"), dtype=float) / 255.0
+            _check_panorama_size(width, height, max_bytes)
+            rgb = np.asarray(image.convert("RGB"))
+    except InputFileError as exc:
+        raise SkyImageError(str(exc)) from None
     except SkyImageError:
         raise
     except (OSError, UnidentifiedImageError, ValueError, Image.DecompressionBombError) as exc:
         reason = getattr(exc, "strerror", None) or str(exc).splitlines()[0] or type(exc).__name__
         raise SkyImageError(f"cannot be read as an image ({reason})") from None
-    return np.where(rgb <= 0.04045, rgb / 12.92, ((rgb + 0.055) / 1.055) ** 2.4)
+    return _SRGB_TO_LINEAR[rgb]
+
+
+def _srgb_to_linear(value):
+    """sRGB-encoded values in [0, 1] to linear light (IEC 61966-2-1)."""
+    return np.where(value <= 0.04045, value / 12.92, ((value + 0.055) / 1.055) ** 2.4)
+
+
+# Every 8-bit code decoded once: indexing with the image's bytes needs no float temporaries.
+_SRGB_TO_LINEAR = _srgb_to_linear(np.arange(256) / 255.0)
+
+
+def _check_panorama_size(width, height, max_bytes):
+    """Refuse a panorama by its header: too many pixels, too much memory, or not 2:1."""
+    pixels = width * height
+    if pixels > MAX_PANORAMA_PIXELS:
+        raise SkyImageError(f"is {width} x {height} pixels, too large (at most "
+                            f"{MAX_PANORAMA_PIXELS} pixels)")
+    needed = pixels * PANORAMA_BYTES_PER_PIXEL
+    if max_bytes is not None and needed > max_bytes:
+        raise PanoramaMemoryError(f"is {width} x {height} pixels, which take {needed / 1e9:.3g} GB "
+                            f"decoded, more than the {max_bytes / 1e9:.3g} GB allowed")
+    if width != 2 * height:
+        raise SkyImageError(f"is {width} x {height} pixels; an equirectangular "
+                            "panorama is twice as wide as it is high (2:1)")
 
 
 @njit(cache=True, parallel=True, error_model="numpy")

@@ -37,6 +37,7 @@ import numpy as np
 from ..errors import OutputWriteError
 from ..errors import SceneError
 from ..light.observing import PER_ORDER_PRODUCTS
+from ..guards.runs import run_tag
 from .result import StillResult
 
 __all__ = ["TilePlan", "plan_still", "check_memory", "render_in_tiles",
@@ -159,7 +160,8 @@ class TileStore:
         parent = Path(workdir) if workdir is not None else None
         if parent is not None:
             parent.mkdir(parents=True, exist_ok=True)
-        self.folder = Path(tempfile.mkdtemp(prefix=".nullray-tiles-",
+        # The run tag lets a later run sweep the folder if this one is killed.
+        self.folder = Path(tempfile.mkdtemp(prefix=f".nullray-tiles-{run_tag()}.",
                                             dir=None if parent is None else str(parent)))
         self._files = {}
 

@@ -14,6 +14,7 @@ register it in ``EMISSION_LAWS`` and describe its scene keys in
 from dataclasses import dataclass
 
 import numpy as np
+from ..guards.reading import InputFileError, read_bounded
 from .thermal import cgs, diluted_blackbody, page_thorne_flux
 
 __all__ = ["PowerLaw", "NovikovThorne", "RadialProfile", "EmissionTableError", "EMISSION_LAWS",
@@ -108,10 +109,20 @@ class EmissionTableError(ValueError):
     """A radial profile table that cannot be used; the message is one line."""
 
 
+# Largest emission profile read: a table of a radial function needs far less, and a
+# hostile file (or /dev/zero) must not fill memory.
+MAX_PROFILE_BYTES = 8 * 1024 * 1024
+MAX_PROFILE_ROWS = 100_000
+
+
 def read_profile_table(path):
     """Read a CSV radial profile: columns r (M) and emissivity (>= 0), r increasing.
 
-    Lines starting with '#' are comments; one header line of non-numbers is allowed.
+    Lines starting with '#' are comments; one header line of non-numbers is
+    allowed.  Only a regular file of at most ``MAX_PROFILE_BYTES`` with at most
+    ``MAX_PROFILE_ROWS`` rows is read (:func:`render.guards.reading.read_bounded`).
+    Messages name the file, the line number and what was expected, never the
+    file's contents (the path may name a file that is not a table at all).
 
     Returns
     -------
@@ -120,29 +131,25 @@ def read_profile_table(path):
     Raises
     ------
     EmissionTableError
-        Missing file, fewer than two rows, non-numbers, non-increasing or
-        non-positive r, negative or non-finite emissivity.
+        Not a regular file, too large, too many rows, fewer than two rows,
+        non-numbers, non-increasing or non-positive r, negative or non-finite
+        emissivity.
     """
     import csv
+    import io
 
     try:
-        with open(path, newline="", encoding="utf-8") as handle:
-            rows = [row for row in csv.reader(handle)
-                    if row and not row[0].lstrip().startswith("#") and any(c.strip() for c in row)]
-    except (OSError, UnicodeDecodeError) as exc:
-        reason = getattr(exc, "strerror", None) or str(exc)
-        raise EmissionTableError(f"cannot read emission profile {path}: {reason}") from None
-    values = []
-    for number, row in enumerate(rows, start=1):
-        try:
-            if len(row) != 2:
-                raise ValueError
-            values.append((float(row[0]), float(row[1])))
-        except ValueError:
-            if number == 1 and not values and len(row) == 2:
-                continue  # header line
-            raise EmissionTableError(f"emission profile {path}: row {number} {row!r} is not "
-                                     "two numbers 'r, emissivity'") from None
+        raw = read_bounded(path, MAX_PROFILE_BYTES)
+        text = raw.decode("utf-8")
+    except InputFileError as exc:
+        raise EmissionTableError(f"emission profile {path} {exc}") from None
+    except UnicodeDecodeError as exc:
+        raise EmissionTableError(f"emission profile {path} is not UTF-8 text (byte {exc.start})"
+                                 ) from None
+    try:
+        values = _profile_rows(csv.reader(io.StringIO(text, newline="")), path)
+    except csv.Error as exc:
+        raise EmissionTableError(f"emission profile {path} is not CSV text ({exc})") from None
     table = np.array(values, dtype=float).reshape(-1, 2)
     if len(table) < 2:
         raise EmissionTableError(f"emission profile {path} needs at least two rows of "
@@ -156,6 +163,26 @@ def read_profile_table(path):
     if np.any(emissivity < 0):
         raise EmissionTableError(f"emission profile {path}: emissivity must be >= 0")
     return r, emissivity
+
+
+def _profile_rows(reader, path):
+    """[(r, emissivity)] of a CSV reader's data rows, skipping comments and one header."""
+    values = []
+    for number, row in enumerate((row for row in reader if row and not row[0].lstrip()
+                                  .startswith("#") and any(c.strip() for c in row)), start=1):
+        if len(values) >= MAX_PROFILE_ROWS:
+            raise EmissionTableError(f"emission profile {path} has more than "
+                                     f"{MAX_PROFILE_ROWS} rows")
+        try:
+            if len(row) != 2:
+                raise ValueError
+            values.append((float(row[0]), float(row[1])))
+        except ValueError:
+            if number == 1 and len(row) == 2:
+                continue  # header line
+            raise EmissionTableError(f"emission profile {path}: line {reader.line_num} is not "
+                                     "two numbers 'r, emissivity'") from None
+    return values
 
 
 @dataclass(frozen=True)

@@ -1,22 +1,38 @@
-"""Writing results: atomic files, PNG images, NPZ data maps.
+"""Writing results: atomic files published as complete sets, PNG images, NPZ data maps.
 
 Every file is first written to a temporary name in the destination folder and
 then renamed into place (``os.replace``, atomic on POSIX), so an interrupted
 run never leaves a truncated file under the final name.  Existing files are
 never overwritten unless the caller passes ``overwrite=True``.
+
+Inside :func:`published_together` the renames wait: every file of the block is
+written to its temporary first, and all of them are renamed at the end, under
+a lock on the folder and with SIGINT and SIGTERM held back, so that a still's
+PNG, NPZ and products appear together, from one run, or not at all.
+Temporary names carry the run's tag (:mod:`render.guards.runs`), so that
+:func:`sweep_dead_temporaries` can remove those of a run that was killed.
 """
 
+import contextvars
 import json
 import os
+import shutil
+import signal
 import tempfile
+import threading
 from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import OutputExists, OutputWriteError
+from ..guards.runs import is_dead_here, run_tag
 
-__all__ = ["OutputExists", "atomic_path", "atomic_write", "write_png", "write_npz", "check_free"]
+__all__ = ["OutputExists", "atomic_path", "atomic_write", "write_png", "write_npz", "check_free",
+           "published_together", "sweep_dead_temporaries"]
+
+# The files of the innermost published_together block: [(temporary, final path, overwrite)].
+_STAGED = contextvars.ContextVar("nullray_staged_files", default=None)
 
 
 def check_free(paths, overwrite=False):
@@ -34,11 +50,13 @@ def atomic_path(path, overwrite=False):
     """A temporary path beside ``path`` to write; renamed to ``path`` when the block ends cleanly.
 
     The one temporary-and-rename mechanism of every output: the temporary is a
-    hidden ``.<name>.<random>.part`` in the destination folder (so the rename
-    stays on one file system and an interrupted run's leftovers are easy to
-    find), with the mode a plain ``open()`` would give.  When the block ends
-    cleanly the file is synced to disk and renamed into place; on any exception
-    it is removed, and nothing appears under ``path``.
+    hidden ``.<name>.<run tag>.<random>.part`` in the destination folder (so the
+    rename stays on one file system, and a killed run's leftovers are found and
+    swept by :func:`sweep_dead_temporaries`), with the mode a plain ``open()``
+    would give.  When the block ends cleanly the file is synced to disk and
+    renamed into place, or, inside :func:`published_together`, kept for the
+    set's rename at the end; on any exception it is removed, and nothing
+    appears under ``path``.
 
     Parameters
     ----------
@@ -72,7 +90,8 @@ def atomic_path(path, overwrite=False):
     path = Path(path)
     check_free([path], overwrite)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{run_tag()}.", suffix=".part",
+                               dir=path.parent)
     try:
         try:
             # mkstemp creates the file 0600; give it the mode a plain open() would.
@@ -83,7 +102,10 @@ def atomic_path(path, overwrite=False):
             os.close(fd)
         yield Path(tmp)
         _sync(tmp)
-        if overwrite:
+        staged = _STAGED.get()
+        if staged is not None:
+            staged.append((tmp, path, overwrite))   # renamed with its set
+        elif overwrite:
             os.replace(tmp, path)
         else:
             _publish_new(tmp, path)
@@ -96,6 +118,138 @@ def atomic_path(path, overwrite=False):
             # A full disk, a lost mount, no permission: one line for the user, no traceback.
             raise OutputWriteError(f"writing {path} failed: {exc.strerror or exc}") from exc
         raise
+
+
+@contextmanager
+def published_together(folder):
+    """Publish every file written in the block at its end, together, or none of them.
+
+    :func:`atomic_path` (and so every writer here and in
+    :mod:`render.output.products`) writes and syncs its temporary as usual, but
+    the renames wait for the end of the block.  Then, under an exclusive
+    ``flock`` on ``folder`` (so that two runs publishing into one folder take
+    turns, and a set is never mixed from two runs) and with SIGINT and SIGTERM
+    held back until the last rename, the names are checked free (for files
+    written without ``overwrite``) and every temporary is renamed.  If the
+    block raises, or a name is taken, every temporary is removed and nothing of
+    the set is published (files of the set already renamed under a new name are
+    removed again).  The lock lives on the folder itself: no lock file is left.
+
+    Parameters
+    ----------
+    folder : str or Path
+        The folder the files go to (it must exist when the block ends).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> folder = Path(tempfile.mkdtemp())
+    >>> with published_together(folder):
+    ...     _ = atomic_write(folder / "a.txt", lambda f: f.write(b"a"))
+    ...     print(sorted(p.name for p in folder.iterdir() if not p.name.startswith(".")))
+    []
+    >>> sorted(p.name for p in folder.iterdir())
+    ['a.txt']
+    """
+    staged = []
+    token = _STAGED.set(staged)
+    try:
+        yield
+    except BaseException:
+        _STAGED.reset(token)
+        _remove_temporaries(staged)
+        raise
+    _STAGED.reset(token)
+    _publish_staged(Path(folder), staged)
+
+
+def _publish_staged(folder, staged):
+    """Rename staged temporaries to their names, all or none, under the folder's lock."""
+    published = []
+    try:
+        with _folder_lock(folder), _stop_signals_held():
+            check_free([path for _, path, overwrite in staged if not overwrite])
+            for tmp, path, overwrite in staged:
+                if overwrite:
+                    os.replace(tmp, path)
+                else:
+                    _publish_new(tmp, path)
+                    published.append(path)
+    except BaseException as exc:
+        for path in published:
+            path.unlink(missing_ok=True)
+        _remove_temporaries(staged)
+        if isinstance(exc, OSError) and not isinstance(exc, (OutputExists, OutputWriteError)):
+            raise OutputWriteError(f"publishing into {folder} failed: "
+                                   f"{exc.strerror or exc}") from exc
+        raise
+
+
+def _remove_temporaries(staged):
+    for tmp, _, _ in staged:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+
+
+@contextmanager
+def _folder_lock(folder):
+    """An exclusive ``flock`` on the folder itself (no lock file to leave behind)."""
+    import fcntl
+
+    fd = os.open(folder, os.O_RDONLY | getattr(os, "O_DIRECTORY", 0))
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX)
+        yield
+    finally:
+        os.close(fd)   # closing releases the lock
+
+
+@contextmanager
+def _stop_signals_held():
+    """Hold SIGINT and SIGTERM back (delivered when the block ends), so a set is renamed whole."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    held = {signal.SIGINT, signal.SIGTERM}
+    previous = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+
+
+def sweep_dead_temporaries(folder):
+    """Remove the temporaries of dead runs of this host from ``folder``; return how many.
+
+    A run killed with SIGKILL (or by a power cut's reboot) leaves its hidden
+    ``.*.part`` files and ``.nullray-tiles-*`` folders behind.  Their names
+    carry the run's tag (:mod:`render.guards.runs`); those whose process no longer
+    exists on this host are removed.  Temporaries of live runs, of other
+    hosts, and hidden files without a tag are left alone.  A folder that does
+    not exist has nothing to sweep.
+    """
+    swept = 0
+    try:
+        entries = list(os.scandir(folder))
+    except (FileNotFoundError, NotADirectoryError):
+        return 0
+    for entry in entries:
+        name = entry.name
+        ours = name.startswith(".") and (name.endswith(".part")
+                                         or name.startswith(".nullray-tiles-"))
+        if not (ours and is_dead_here(name)):
+            continue
+        try:
+            if entry.is_dir(follow_symlinks=False):
+                shutil.rmtree(entry.path)
+            else:
+                os.unlink(entry.path)
+            swept += 1
+        except FileNotFoundError:
+            pass   # another run swept it first
+    return swept
 
 
 def _sync(name):

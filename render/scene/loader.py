@@ -18,6 +18,7 @@ from pathlib import Path
 import yaml
 
 from ..errors import SceneError
+from ..guards.reading import InputFileError, read_bounded
 from ..camera.observers import Viewpoint, check_observer_position
 from .keys import (INTERPOLATIONS, KEYFRAME_SECTIONS, KEYS, MAX_KEYFRAMES, SECTIONS, SYNONYMS)
 from ..geodesics.tracing import TraceSettings, resolve_method
@@ -54,6 +55,10 @@ class Scene:
     values: dict
     source: str = "<defaults>"
     document: dict = field(default_factory=dict)
+    # Path keys the user named on the command line (--set): read from the current folder.
+    user_paths: frozenset = frozenset()
+    # Whether the scene file's side files may lie outside its folder (--allow-outside-files).
+    allow_outside_files: bool = False
 
     def __getitem__(self, key):
         return self.values[key]
@@ -68,11 +73,18 @@ class Scene:
         return isco_radius(self.spin) if value == "isco" else float(value)
 
     def side_file(self, key):
-        """The file a path-valued key names, resolved; None when the key is unset.
+        """The file a path-valued key names, resolved and checked; None when the key is unset.
 
-        A relative path is taken from the scene file's folder, so a scene and its
-        side files (an emission profile, a sky panorama) move together; a scene
-        not read from a file takes it from the current folder.
+        The one place that decides where a side file is and whether it may be
+        read.  A path written in a scene file is taken from the scene file's
+        folder, so a scene and its side files (an emission profile, a sky
+        panorama) move together, and it must stay inside that folder (after
+        following symbolic links): a scene someone else wrote cannot make
+        nullray read ``/etc/passwd`` or ``~/.ssh``.  The user lifts that rule
+        with ``--allow-outside-files`` (``allow_outside_files=True`` of
+        :func:`load_scene`).  A path the user gave with ``--set``, or in a scene
+        not read from a file, is the user's own: it is taken from the current
+        folder and may be anywhere.
 
         Parameters
         ----------
@@ -82,6 +94,11 @@ class Scene:
         Returns
         -------
         pathlib.Path or None
+
+        Raises
+        ------
+        SceneError
+            A scene file's side file outside its folder, not allowed.
 
         Examples
         --------
@@ -93,8 +110,16 @@ class Scene:
         if name is None:
             return None
         path = Path(name)
-        if not path.is_absolute() and self.source not in ("<defaults>", "<dict>"):
-            path = Path(self.source).parent / path
+        if self.source in ("<defaults>", "<dict>") or key in self.user_paths:
+            return path
+        folder = Path(self.source).parent
+        if not path.is_absolute():
+            path = folder / path
+        if not self.allow_outside_files and not _is_inside(path, folder):
+            raise SceneError(
+                f"{key} = {_describe(name)} is outside the scene file's folder "
+                f"{_describe(str(folder))}; a scene reads side files from its own folder only. "
+                f"Pass --allow-outside-files to read it, or name it yourself with --set {key}=...")
         return path
 
     def viewpoint(self):
@@ -120,6 +145,12 @@ class Scene:
             max_crossings=v["tracing.max_crossings"],
             stop_on_disk=v["disk.surface"] == "opaque", r_in=self.inner_radius,
             r_out=v["disk.outer_radius"], want_escape=v["sky.backdrop"] != "none")
+
+
+def _is_inside(path, folder):
+    """Whether ``path`` lies inside ``folder`` once symbolic links and '..' are resolved."""
+    real, base = os.path.realpath(path), os.path.realpath(folder)
+    return os.path.commonpath([real, base]) == base
 
 
 def _describe(value):
@@ -377,8 +408,13 @@ def _check_animation(values, inner):
                   f"{values['disk.outer_radius']:.6g} M")
 
 
-def scene_from_dict(document, source="<dict>", default_name="scene"):
-    """Validate a nested mapping (as read from YAML) and return a :class:`Scene`."""
+def scene_from_dict(document, source="<dict>", default_name="scene", *, user_paths=(),
+                    allow_outside_files=False):
+    """Validate a nested mapping (as read from YAML) and return a :class:`Scene`.
+
+    ``user_paths`` and ``allow_outside_files`` say where its side files may be
+    (:meth:`Scene.side_file`).
+    """
     if document is None:
         raise SceneError(f"{source} is empty; a scene is a mapping of sections "
                          f"({', '.join(SECTIONS)})")
@@ -402,7 +438,8 @@ def scene_from_dict(document, source="<dict>", default_name="scene"):
     for path, spec in KEYS.items():
         values.setdefault(path, spec.default)
     _check_consistency(values)
-    return Scene(values=values, source=source, document=nest_values(values))
+    return Scene(values=values, source=source, document=nest_values(values),
+                 user_paths=frozenset(user_paths), allow_outside_files=bool(allow_outside_files))
 
 
 class _StrictLoader(yaml.SafeLoader):
@@ -489,16 +526,17 @@ def parse_yaml_text(text, source):
 
 
 def read_scene_document(path):
-    """Read a scene file's mapping, refusing oversized, non-UTF-8 or unsafe input."""
+    """Read a scene file's mapping, refusing special, oversized, non-UTF-8 or unsafe input.
+
+    Only a regular file of at most ``MAX_SCENE_BYTES`` is read
+    (:func:`render.guards.reading.read_bounded`: a FIFO, a device or a folder is
+    refused without being opened for a blocking read).
+    """
     path = Path(path)
     try:
-        size = os.path.getsize(path)
-        if size > MAX_SCENE_BYTES:
-            raise SceneError(f"{path} is {size} bytes; scene files are limited to "
-                             f"{MAX_SCENE_BYTES} bytes")
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise SceneError(f"cannot read scene file {path}: {exc.strerror or exc}") from None
+        raw = read_bounded(path, MAX_SCENE_BYTES)
+    except InputFileError as exc:
+        raise SceneError(f"scene file {path} {exc}") from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
@@ -532,7 +570,7 @@ def apply_overrides(document, overrides):
     return document
 
 
-def load_scene(path, overrides=()):
+def load_scene(path, overrides=(), *, allow_outside_files=False):
     """Load and validate a scene file.
 
     Parameters
@@ -540,7 +578,11 @@ def load_scene(path, overrides=()):
     path : str or Path
         YAML scene file.
     overrides : sequence of str
-        ``dotted.key=value`` items applied before validation (as ``--set``).
+        ``dotted.key=value`` items applied before validation (as ``--set``);
+        a side file named here is the user's own, read from the current folder.
+    allow_outside_files : bool
+        Let the scene file's own side files lie outside its folder
+        (``--allow-outside-files``; see :meth:`Scene.side_file`).
 
     Returns
     -------
@@ -559,7 +601,9 @@ def load_scene(path, overrides=()):
         raise SceneError(f"{path} is empty; a scene is a mapping of sections "
                          f"({', '.join(SECTIONS)})")
     document = apply_overrides(document, overrides)
-    return scene_from_dict(document, source=str(path), default_name=Path(path).stem)
+    named = {item.split("=", 1)[0].strip() for item in overrides or () if "=" in item}
+    return scene_from_dict(document, source=str(path), default_name=Path(path).stem,
+                           user_paths=named, allow_outside_files=allow_outside_files)
 
 
 def default_scene(overrides=(), **values):
@@ -608,4 +652,5 @@ def preview_scene(scene):
     values["output.fits"] = False
     values["name"] = f"{values['name']}-preview"[:100]
     return scene_from_dict(nest_values(values), source=scene.source,
-                           default_name=values["name"])
+                           default_name=values["name"], user_paths=scene.user_paths,
+                           allow_outside_files=scene.allow_outside_files)
