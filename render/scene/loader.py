@@ -41,7 +41,7 @@ MAX_SCENE_BYTES = 256 * 1024
 MAX_NESTING = 8
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Scene:
     """A validated scene: ``values`` maps every dotted key to its value.
 
@@ -57,6 +57,14 @@ class Scene:
 
     def __getitem__(self, key):
         return self.values[key]
+
+    def __repr__(self):
+        """A one-line summary: name, source, size, spin, inclination, observer, method, mode."""
+        v = self.values
+        return (f"<Scene {v['name']!r} from {self.source}: {v['image.width']}x{v['image.height']}, "
+                f"spin {v['black_hole.spin']:g}, inclination {v['observer.inclination']:g} deg, "
+                f"{v['observer.placement']} observer, method {v['tracing.method']}, "
+                f"mode {v['observing.mode']}>")
 
     @property
     def spin(self):
