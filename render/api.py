@@ -16,7 +16,7 @@ import os
 import warnings
 from pathlib import Path
 
-from .errors import NullrayWarning, OutputFolderError, UsageError
+from .errors import NullrayWarning, OutputFolderError, SceneError, UsageError
 from .film.sequence import render_sequence as _render_sequence_here
 from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
@@ -84,7 +84,7 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
     """Render a still and publish its files; return ``(result, paths)``.
 
     Everything that can be refused is refused before any tracing and before the
-    folder is made: the emission table and sky image are read, the targets are
+    folder is made: a scene that would write no file at all, the emission table and sky image are read, the targets are
     checked free (unless ``overwrite``), the scheduler is reached, and the folder
     is checked writable.  A still larger than ``tracing.memory_budget`` keeps its
     maps in temporary files inside the output folder until they are written
@@ -95,8 +95,13 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
     prepare_observation(scene)   # reads an emission profile table
     prepare_sky(scene)           # reads a sky panorama
     folder = Path(output_dir)
-    check_free(list(still_paths(scene.document, folder).values())
-               + list(product_paths(scene.document, folder).values()), overwrite)
+    targets = (list(still_paths(scene.document, folder).values())
+               + list(product_paths(scene.document, folder).values()))
+    if not targets:
+        raise SceneError("output.png, output.npz and output.fits are all false, so the still "
+                         "would write nothing; turn one on (e.g. --set output.png=true), or "
+                         "call render.render_still for the arrays alone")
+    check_free(targets, overwrite)
     if scheduler:
         if needs_sensor(scene):
             raise UsageError("--scheduler renders bands of rows, but a sky or "

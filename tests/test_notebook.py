@@ -86,3 +86,19 @@ def test_cropped_disk_warns_python_callers(small_scene):
     # Python's warnings machinery carries the message the command line prints.
     messages = [str(w.message) for w in caught if issubclass(w.category, NullrayWarning)]
     assert any("image border" in m for m in messages)
+
+
+def test_metadata_records_the_software_versions(tiny_result):
+    import platform
+    import sys
+
+    import numba
+
+    _, result = tiny_result
+    versions = result.metadata["versions"]
+    # Each package's own report of its version (numpy, numba, the sys and platform modules).
+    assert versions["numpy"] == np.__version__
+    assert versions["numba"] == numba.__version__
+    assert versions["python"] == sys.version.split()[0]
+    assert versions["platform"] == platform.platform()
+    assert versions["nullray"] == render.__version__

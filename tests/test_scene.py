@@ -132,6 +132,9 @@ BAD_SCENES = [
     ("name-absolute", "name: /tmp/first\n", ["name", "'/tmp/first'"]),
     ("name-empty", "name: ''\n", ["name", "''"]),
     ("name-number", "name: 5\n", ["name", "5"]),
+    # A still that would write nothing is refused, not rendered (common practice: fail early).
+    ("every-output-off", "output:\n  png: false\n  npz: false\n  fits: false\n",
+     ["output.png", "output.npz", "output.fits", "write nothing"]),
 ]
 
 
