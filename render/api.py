@@ -27,7 +27,7 @@ from .output.products import product_paths, write_products
 from .parallel import (auto_workers, capped_workers, check_scheduler, connect, frame_results,
                        render_still_on_cluster)
 from .scene.keys import keys_reference
-from .scene.loader import default_scene, load_scene, preview_scene
+from .scene.loader import default_scene, load_scene, preview_film, preview_scene
 
 __all__ = ["open_scene", "keys_reference", "render_still", "make_still", "render_sequence",
            "make_measurement"]
@@ -144,7 +144,7 @@ def _check_writable_folder(folder):
 
 
 def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, overwrite=False,
-                    progress=None, products=True):
+                    progress=None, products=True, preview=False):
     """Render (or finish) a scene's frame sequence, its video, contact sheet and light curve.
 
     Parameters
@@ -161,6 +161,10 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
         an unreachable one is refused before any file is made.
     overwrite, progress, products
         As for :func:`render.film.sequence.render_sequence`.
+    preview : bool
+        Render the quick look instead (:func:`render.scene.loader.preview_film`: small
+        frames, one order, at most 12 frames with the keyframes at the same moments,
+        into ``output_dir/<scene name>-preview/``); also when ``image.preview`` is true.
 
     Returns
     -------
@@ -168,6 +172,8 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
     """
     if workers is not None and workers < 1:
         raise UsageError(f"--workers {workers} is not allowed; expected N >= 1")
+    if preview or scene["image.preview"]:
+        scene = preview_film(scene)
     client = connect(scheduler) if scheduler is not None else None
     try:
         def run_frames(jobs):

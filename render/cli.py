@@ -56,6 +56,9 @@ def _parser():
     sequence.add_argument("--scheduler", metavar="ADDRESS",
                           help="Dask distributed scheduler, e.g. tcp://10.0.0.5:8786")
     sequence.add_argument("--quiet", action="store_true", help="print nothing on success")
+    sequence.add_argument("--preview", action="store_true",
+                          help="quick look: at most 12 small one-order frames, keyframes at the "
+                               "same moments, into <name>-preview/")
 
     measure = commands.add_parser(
         "measure", help="measure the shadow against the analytic prediction (exit 1 on a miss)")
@@ -143,7 +146,7 @@ def _sequence(args):
     try:
         result = render_sequence(scene, args.output_dir, workers=args.workers,
                                  scheduler=args.scheduler, overwrite=args.overwrite,
-                                 progress=bar)
+                                 progress=bar, preview=args.preview)
     finally:
         bar.close()
     flash = result.flash

@@ -19,7 +19,8 @@ import yaml
 
 from ..errors import SceneError
 from ..camera.observers import Viewpoint, check_observer_position
-from .keys import (INTERPOLATIONS, KEYFRAME_SECTIONS, KEYS, MAX_KEYFRAMES, SECTIONS, SYNONYMS)
+from .keys import (INTERPOLATIONS, KEYFRAME_PLACEMENTS, KEYFRAME_SECTIONS, KEYS, MAX_KEYFRAMES,
+                   SECTIONS, SYNONYMS)
 from ..geodesics.tracing import TraceSettings, resolve_method
 from ..spacetime.kerr import horizon_radii, isco_radius
 from ..imaging.sensor import check_sensor, check_untiled
@@ -35,6 +36,9 @@ __all__ = [
     "apply_overrides",
     "default_scene",
     "preview_scene",
+    "preview_film",
+    "keyframe_position",
+    "frame_count",
 ]
 
 MAX_SCENE_BYTES = 256 * 1024
@@ -197,7 +201,14 @@ def _coerce(spec, value):
 
 
 def _coerce_keyframes(key, value):
-    """A list of {frame: n, dotted.key: number, interpolation: ...}, frames increasing."""
+    """A list of {frame: n | time: s | at: fraction, dotted.key: number, interpolation: ...}.
+
+    Each entry is placed by exactly one of ``frame`` (a whole number >= 0),
+    ``time`` (seconds of screen time >= 0) or ``at`` (a fraction of the film,
+    0 to 1); entries placed the same way must increase.  The order across
+    placements and the film's end are checked with the frame count
+    (:func:`_check_keyframe_order`).
+    """
     if value is None:
         return ()
     if not isinstance(value, (list, tuple)):
@@ -205,42 +216,68 @@ def _coerce_keyframes(key, value):
     if len(value) > MAX_KEYFRAMES:
         raise SceneError(f"{key} has {len(value)} entries; at most {MAX_KEYFRAMES} are allowed")
     entries = []
-    previous = None
+    previous = {}
     for index, entry in enumerate(value):
         where = f"{key}[{index}]"
-        if not isinstance(entry, dict) or "frame" not in entry:
-            _fail(where, entry, "a mapping with 'frame' and dotted numeric keys")
-        frame = entry["frame"]
-        if isinstance(frame, bool) or not isinstance(frame, int) or frame < 0:
-            _fail(f"{where}.frame", frame, "a whole number >= 0")
-        if previous is not None and frame <= previous:
-            raise SceneError(f"{where}.frame = {frame} is out of order; keyframes must have "
-                             f"increasing frames (previous entry: frame {previous})")
-        previous = frame
-        clean = {"frame": frame}
+        placement = _keyframe_placement(where, entry)
+        place = entry[placement]
+        if placement in previous and place <= previous[placement]:
+            raise SceneError(f"{where}.{placement} = {place} is out of order; keyframes must "
+                             f"increase (previous entry: {placement} {previous[placement]})")
+        previous[placement] = place
+        clean = {placement: place}
         for name, number in entry.items():
-            if name == "frame":
+            if name == placement:
                 continue
             if name == "interpolation":
                 if number not in INTERPOLATIONS:
                     _fail(f"{where}.interpolation", number, f"one of: {', '.join(INTERPOLATIONS)}")
                 clean[name] = number
                 continue
-            spec = KEYS.get(name) if isinstance(name, str) else None
-            if (spec is None or spec.kind != "float"
-                    or name.split(".")[0] not in KEYFRAME_SECTIONS):
-                hint = "" if spec is not None else _suggest(str(name))
-                raise SceneError(f"{where}: {_describe(name)} cannot be keyframed; allowed: "
-                                 f"numeric keys of {', '.join(KEYFRAME_SECTIONS)} "
-                                 f"(e.g. observer.inclination){hint}")
-            if isinstance(number, bool) or not isinstance(number, (int, float)) or not (
-                    _is_finite(number)):
-                _fail(f"{where}.{name}", number, "a finite number")
-            clean[name] = float(number)
+            clean[name] = _keyframed_number(where, name, number)
         if len(clean) == 1 + ("interpolation" in clean):
-            raise SceneError(f"{where} (frame {frame}) sets no key")
+            raise SceneError(f"{where} ({placement} {place}) sets no key")
         entries.append(clean)
     return tuple(entries)
+
+
+def _keyframe_placement(where, entry):
+    """Which of frame, time or at places a keyframe entry (exactly one), its value checked."""
+    wanted = "a mapping with one of 'frame', 'time' or 'at' and dotted numeric keys"
+    if not isinstance(entry, dict):
+        _fail(where, entry, wanted)
+    given = [name for name in KEYFRAME_PLACEMENTS if name in entry]
+    if len(given) != 1:
+        if given:
+            raise SceneError(f"{where} is placed by {' and '.join(given)}; give one of "
+                             "'frame', 'time' or 'at'")
+        _fail(where, entry, wanted)
+    placement = given[0]
+    place = entry[placement]
+    if placement == "frame":
+        if isinstance(place, bool) or not isinstance(place, int) or place < 0:
+            _fail(f"{where}.frame", place, "a whole number >= 0")
+    elif isinstance(place, bool) or not isinstance(place, (int, float)) or not _is_finite(place):
+        _fail(f"{where}.{placement}", place, "a number (seconds >= 0)" if placement == "time"
+              else "a fraction of the film, 0 <= at <= 1")
+    elif placement == "time" and not 0 <= place <= 3600:
+        _fail(f"{where}.time", place, "seconds of screen time, 0 <= time <= 3600")
+    elif placement == "at" and not 0 <= place <= 1:
+        _fail(f"{where}.at", place, "a fraction of the film, 0 <= at <= 1")
+    return placement
+
+
+def _keyframed_number(where, name, number):
+    """A keyframed key's value: a finite number of a numeric key in a keyframable section."""
+    spec = KEYS.get(name) if isinstance(name, str) else None
+    if spec is None or spec.kind != "float" or name.split(".")[0] not in KEYFRAME_SECTIONS:
+        hint = "" if spec is not None else _suggest(str(name))
+        raise SceneError(f"{where}: {_describe(name)} cannot be keyframed; allowed: "
+                         f"numeric keys of {', '.join(KEYFRAME_SECTIONS)} "
+                         f"(e.g. observer.inclination){hint}")
+    if isinstance(number, bool) or not isinstance(number, (int, float)) or not _is_finite(number):
+        _fail(f"{where}.{name}", number, "a finite number")
+    return float(number)
 
 
 def _is_finite(value):
@@ -362,6 +399,42 @@ def frame_count(values):
     return None
 
 
+def keyframe_position(entry, frames, fps):
+    """The frame position (possibly fractional) of a keyframe entry in a film of ``frames``.
+
+    ``frame: n`` is frame n; ``time: t`` is screen time t seconds, frame t x fps;
+    ``at: s`` is the fraction s of the film, frame s x (frames - 1), so it lands at the
+    same moment whatever the frame count.
+
+    Examples
+    --------
+    >>> keyframe_position({"at": 0.5}, 13, 24.0), keyframe_position({"time": 0.25}, 13, 24.0)
+    (6.0, 6.0)
+    """
+    if "frame" in entry:
+        return entry["frame"]
+    if "time" in entry:
+        return entry["time"] * fps
+    return entry["at"] * (max(frames, 1) - 1)
+
+
+def _check_keyframe_order(keyframes, frames, fps):
+    """Keyframes placed in increasing order across placements, none after the film's end."""
+    previous = None
+    for index, entry in enumerate(keyframes):
+        position = keyframe_position(entry, frames, fps)
+        placement = next(name for name in KEYFRAME_PLACEMENTS if name in entry)
+        where = f"animation.keyframes[{index}].{placement} = {entry[placement]}"
+        if position > frames - 1 + 1e-9:
+            raise SceneError(f"{where} is frame {position:g}, but the sequence has {frames} "
+                             f"frames (0..{frames - 1}); place it with 'at' (a fraction of the "
+                             "film) to keep it whatever the frame count")
+        if previous is not None and position <= previous + 1e-9:
+            raise SceneError(f"{where} (frame {position:g}) is out of order; keyframes must "
+                             f"increase (previous entry: frame {previous:g})")
+        previous = position
+
+
 def _check_animation(values, inner):
     """Cross-key checks of the animation and pattern sections (docs/animation.md)."""
     if values["animation.frames"] is not None and values["animation.duration"] is not None:
@@ -369,9 +442,8 @@ def _check_animation(values, inner):
                          "(duration x fps sets the frame count)")
     frames = frame_count(values)
     keyframes = values["animation.keyframes"]
-    if keyframes and frames is not None and keyframes[-1]["frame"] >= frames:
-        raise SceneError(f"animation.keyframes sets frame {keyframes[-1]['frame']}, but the "
-                         f"sequence has {frames} frames (0..{frames - 1})")
+    if keyframes and frames is not None:
+        _check_keyframe_order(keyframes, frames, values["animation.fps"])
     if values["animation.camera_path"] != "still" and values["observer.placement"] != "camera":
         raise SceneError(f"animation.camera_path = {values['animation.camera_path']!r} needs "
                          "observer.placement = 'camera' (a distant observer cannot move)")
@@ -617,3 +689,46 @@ def preview_scene(scene):
     values["name"] = f"{values['name']}-preview"[:100]
     return scene_from_dict(nest_values(values), source=scene.source,
                            default_name=values["name"])
+
+
+PREVIEW_FRAMES = 12
+
+
+def preview_film(scene, frames=PREVIEW_FRAMES):
+    """The quick-look version of a film: preview stills, at most ``frames`` frames.
+
+    Each frame is a :func:`preview_scene` still; the film keeps its moments:
+    every keyframe is re-placed by ``at`` (its fraction of the full film), the
+    observer's clock per frame grows so that the frames span the same time, and
+    the frame rate drops so that the film lasts as long (at least 1 per second).
+    The name gets ``-preview``, so the full film's folder is never touched.
+
+    Examples
+    --------
+    >>> from render import default_scene
+    >>> film = default_scene(**{"animation.frames": 121, "animation.keyframes": [
+    ...     {"frame": 60, "observer.inclination": 30.0}]})
+    >>> quick = preview_film(film, frames=11)
+    >>> quick["animation.frames"], quick["animation.keyframes"][0]["at"], quick["name"]
+    (11, 0.5, 'scene-preview')
+    >>> quick["animation.time_step"], round(quick["animation.fps"], 4)   # 24 x 11 / 121
+    (120.0, 2.1818)
+    """
+    full = frame_count(scene.values)
+    small = preview_scene(scene)
+    if full is None:   # no film: the sequence refuses it with its own message
+        return small
+    count = max(1, min(frames, full))
+    fps = scene["animation.fps"]
+    values = dict(small.values)
+    values["animation.keyframes"] = [
+        {**{k: v for k, v in entry.items() if k not in KEYFRAME_PLACEMENTS},
+         "at": keyframe_position(entry, full, fps) / (full - 1) if full > 1 else 0.0}
+        for entry in scene["animation.keyframes"]]
+    values["animation.frames"] = count
+    values["animation.duration"] = None
+    if count > 1:
+        values["animation.time_step"] = scene["animation.time_step"] * (full - 1) / (count - 1)
+    values["animation.fps"] = min(KEYS["animation.fps"].high,
+                                  max(KEYS["animation.fps"].low, fps * count / full))
+    return scene_from_dict(nest_values(values), source=scene.source, default_name=values["name"])
