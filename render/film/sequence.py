@@ -62,7 +62,8 @@ def _frame_scene(scene, values, frame):
             value = math.remainder(value, 360.0)
         document[section][leaf] = value
     try:
-        return scene_from_dict(document, source=scene.source, default_name=scene["name"])
+        return scene_from_dict(document, source=scene.source, default_name=scene["name"],
+                               overridden=scene.overridden)
     except SceneError as exc:
         raise SceneError(f"frame {frame}: {exc}") from None
 

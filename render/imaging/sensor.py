@@ -177,8 +177,8 @@ def prepare_sky(scene):
         stat = path.stat()
         texture = _panorama(str(path), stat.st_mtime_ns, stat.st_size)
     except OSError as exc:
-        raise _scene_error(f"sky.image = {scene['sky.image']!r} cannot be read: "
-                           f"{exc.strerror or exc}") from None
+        raise _scene_error(f"sky.image = {scene['sky.image']!r} cannot be read (looked for "
+                           f"{path}): {exc.strerror or exc}") from None
     except SkyImageError as exc:
         raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc}") from None
     return Sky(backdrop, panorama=texture, source=str(path))

@@ -143,7 +143,7 @@ def prepare_observation(scene):
         try:
             obs.law = RadialProfile.from_csv(path)
         except EmissionTableError as exc:
-            raise _scene_error(str(exc)) from None
+            raise _scene_error(f"emission.profile = {scene['emission.profile']!r}: {exc}") from None
         info["profile"] = str(path)
     else:
         mass = scene["black_hole.mass"]

@@ -58,6 +58,9 @@ class Scene:
     values: dict
     source: str = "<defaults>"
     document: dict = field(default_factory=dict)
+    # Keys whose values came from the command line (--set): their paths are the user's own,
+    # relative to the current folder rather than to the scene file's (side_file).
+    overridden: frozenset = frozenset()
 
     def __getitem__(self, key):
         return self.values[key]
@@ -82,9 +85,12 @@ class Scene:
     def side_file(self, key):
         """The file a path-valued key names, resolved; None when the key is unset.
 
-        A relative path is taken from the scene file's folder, so a scene and its
-        side files (an emission profile, a sky panorama) move together; a scene
-        not read from a file takes it from the current folder.
+        A relative path written in a scene file is taken from the scene file's
+        folder, so a scene and its side files (an emission profile, a sky
+        panorama) move together; a path given on the command line (``--set``,
+        recorded in ``overridden``) or in a scene not read from a file is taken
+        from the current folder, as the user typed it.  The path returned is
+        absolute, so that a message about it says where it was looked for.
 
         Parameters
         ----------
@@ -98,16 +104,23 @@ class Scene:
         Examples
         --------
         >>> scene = scene_from_dict({"sky": {"image": "pano.png"}}, source="scenes/night.yaml")
-        >>> scene.side_file("sky.image").as_posix(), scene.side_file("emission.profile")
-        ('scenes/pano.png', None)
+        >>> scene.side_file("sky.image") == Path.cwd() / "scenes" / "pano.png"
+        True
+        >>> scene.side_file("emission.profile") is None
+        True
+        >>> typed = scene_from_dict({"sky": {"image": "pano.png"}}, source="scenes/night.yaml",
+        ...                         overridden={"sky.image"})
+        >>> typed.side_file("sky.image") == Path.cwd() / "pano.png"
+        True
         """
         name = self.values[key]
         if name is None:
             return None
         path = Path(name)
-        if not path.is_absolute() and self.source not in ("<defaults>", "<dict>"):
+        from_scene_file = self.source not in ("<defaults>", "<dict>")
+        if not path.is_absolute() and from_scene_file and key not in self.overridden:
             path = Path(self.source).parent / path
-        return path
+        return path.absolute()
 
     def viewpoint(self):
         """The observer set-up of this scene (:class:`render.camera.observers.Viewpoint`)."""
@@ -457,8 +470,11 @@ def _check_animation(values, inner):
                   f"{values['disk.outer_radius']:.6g} M")
 
 
-def scene_from_dict(document, source="<dict>", default_name="scene"):
-    """Validate a nested mapping (as read from YAML) and return a :class:`Scene`."""
+def scene_from_dict(document, source="<dict>", default_name="scene", overridden=frozenset()):
+    """Validate a nested mapping (as read from YAML) and return a :class:`Scene`.
+
+    ``overridden`` names the keys given on the command line (:attr:`Scene.overridden`).
+    """
     if document is None:
         raise SceneError(f"{source} is empty; a scene is a mapping of sections "
                          f"({', '.join(SECTIONS)})")
@@ -482,7 +498,8 @@ def scene_from_dict(document, source="<dict>", default_name="scene"):
     for path, spec in KEYS.items():
         values.setdefault(path, spec.default)
     _check_consistency(values)
-    return Scene(values=values, source=source, document=nest_values(values))
+    return Scene(values=values, source=source, document=nest_values(values),
+                 overridden=frozenset(overridden))
 
 
 class _StrictLoader(yaml.SafeLoader):
@@ -639,7 +656,9 @@ def load_scene(path, overrides=()):
         raise SceneError(f"{path} is empty; a scene is a mapping of sections "
                          f"({', '.join(SECTIONS)})")
     document = apply_overrides(document, overrides)
-    return scene_from_dict(document, source=str(path), default_name=Path(path).stem)
+    overridden = {item.split("=", 1)[0].strip() for item in overrides or ()}
+    return scene_from_dict(document, source=str(path), default_name=Path(path).stem,
+                           overridden=overridden)
 
 
 def default_scene(overrides=(), **values):
@@ -688,7 +707,7 @@ def preview_scene(scene):
     values["output.fits"] = False
     values["name"] = f"{values['name']}-preview"[:100]
     return scene_from_dict(nest_values(values), source=scene.source,
-                           default_name=values["name"])
+                           default_name=values["name"], overridden=scene.overridden)
 
 
 PREVIEW_FRAMES = 12
@@ -731,4 +750,5 @@ def preview_film(scene, frames=PREVIEW_FRAMES):
         values["animation.time_step"] = scene["animation.time_step"] * (full - 1) / (count - 1)
     values["animation.fps"] = min(KEYS["animation.fps"].high,
                                   max(KEYS["animation.fps"].low, fps * count / full))
-    return scene_from_dict(nest_values(values), source=scene.source, default_name=values["name"])
+    return scene_from_dict(nest_values(values), source=scene.source, default_name=values["name"],
+                           overridden=scene.overridden)
