@@ -8,12 +8,15 @@ themselves are :mod:`render.output.video` and :mod:`render.output.files`.
 import csv
 import io
 import json
+import warnings
 from pathlib import Path
 
 import numpy as np
 
+from ..errors import NullrayWarning
 from ..output.files import atomic_write, write_png
-from ..output.video import (FRAME_PATTERN, contact_sheet, write_gif, write_light_curve_png,
+from ..output.video import (FRAME_PATTERN, VIDEO_EXTRA_MISSING, contact_sheet,
+                            video_writer_available, write_gif, write_light_curve_png,
                             write_video)
 from .flash import flash_check, relative_luminance
 
@@ -22,6 +25,9 @@ __all__ = ["write_sequence_products"]
 
 def write_sequence_products(folder, plan, manifest):
     """Write sequence.mp4, sequence.gif, sequence_sheet.png, lightcurve.csv/png, flash_check.json.
+
+    The MP4 needs the optional 'video' extra; without it a NullrayWarning says so
+    and the other products are written.
 
     Parameters
     ----------
@@ -43,8 +49,12 @@ def write_sequence_products(folder, plan, manifest):
     folder = Path(folder)
     count = len(plan.jobs)
     frames = [np.asarray(Image.open(folder / FRAME_PATTERN.format(k))) for k in range(count)]
-    paths = {"mp4": write_video(folder / "sequence.mp4", frames, plan.fps),
-             "gif": write_gif(folder / "sequence.gif", frames, plan.fps)}
+    paths = {}
+    if video_writer_available():
+        paths["mp4"] = write_video(folder / "sequence.mp4", frames, plan.fps)
+    else:
+        warnings.warn(VIDEO_EXTRA_MISSING, NullrayWarning, stacklevel=2)
+    paths["gif"] = write_gif(folder / "sequence.gif", frames, plan.fps)
     clocks = [job.clock for job in plan.jobs]
     labels = [f"{k}  t={c:.4g}M" for k, c in enumerate(clocks)]
     paths["sheet"] = write_png(folder / "sequence_sheet.png",

@@ -31,6 +31,21 @@ def _even(pixels):
     return np.pad(pixels, ((0, h % 2), (0, w % 2), (0, 0)), mode="edge")
 
 
+VIDEO_EXTRA_MISSING = ("the MP4 needs imageio with its ffmpeg, the optional 'video' extra: pip "
+                       "install 'nullray[video]'; the frames, GIF, contact sheet and light "
+                       "curve are written without it")
+
+
+def video_writer_available():
+    """Whether the MP4 writer's packages (imageio, imageio-ffmpeg: the 'video' extra) import."""
+    try:
+        import imageio.v3  # noqa: F401
+        import imageio_ffmpeg  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
 def write_video(path, frames, fps):
     """Write RGB frames as H.264 MP4 (imageio with imageio-ffmpeg's ffmpeg), atomically.
 
