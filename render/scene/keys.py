@@ -225,8 +225,8 @@ KEYS = {spec.path: spec for spec in [
        "1/(r^1.5 + a) (a geodesic in the equatorial plane).", low=-1.0, high=1.0),
     _k("animation.interpolation", "choice", "smooth", "-", ", ".join(INTERPOLATIONS),
        "Default interpolation between keyframes.", choices=INTERPOLATIONS),
-    _k("animation.keyframes", "keyframes", (), "-", "a list of {frame: n | time: seconds | "
-       "at: fraction, dotted.key: number, interpolation: ...}", "Values of numeric observer, "
+    _k("animation.keyframes", "keyframes", (), "-", "a list of {frame: n, time: s or at: fraction; "
+       "dotted.key: number, interpolation: ...}", "Values of numeric observer, "
        "black_hole, disk, emission or pattern keys at given frames, screen times (s) or "
        "fractions of the film (0 first frame, 1 last), in increasing order."),
     _k("pattern.shape", "choice", "none", "-", "none, spot, spiral",
