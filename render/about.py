@@ -19,7 +19,7 @@ def software_versions():
     Examples
     --------
     >>> sorted(software_versions())
-    ['numba', 'numpy', 'nullray', 'platform', 'python']
+    ['nullray', 'numba', 'numpy', 'platform', 'python']
     """
     import numba
     import numpy

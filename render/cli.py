@@ -149,12 +149,7 @@ def _sequence(args):
                                  progress=bar, preview=args.preview)
     finally:
         bar.close()
-    flash = result.flash
-    if flash and not flash["passes"]:
-        print(f"nullray: warning: {flash['worst_flashes']} flashes in the second starting at "
-              f"{flash['worst_start_s']:.2f} s (frame {flash['worst_start_frame']}): more than "
-              "3 per second fails WCAG 2.2 SC 2.3.1 (photosensitive epilepsy); do not screen "
-              "it publicly as is", file=sys.stderr)
+    flash = result.flash   # a failed flash check was warned (NullrayWarning) while writing
     if not args.quiet:
         print(f"{len(result.rendered)} frames rendered, {len(result.reused)} already finished, "
               f"in {result.folder}/")

@@ -102,3 +102,22 @@ def test_metadata_records_the_software_versions(tiny_result):
     assert versions["python"] == sys.version.split()[0]
     assert versions["platform"] == platform.platform()
     assert versions["nullray"] == render.__version__
+
+
+def test_failed_flash_check_warns_python_callers(tmp_path, monkeypatch):
+    import render.film.products
+
+    # A flash report that fails, in the form flash_check returns (render/film/flash.py), so
+    # that the warning path is reached without rendering a flashing film.
+    failing = {"passes": False, "worst_flashes": 5, "worst_start_s": 0.0,
+               "worst_start_frame": 0}
+    monkeypatch.setattr(render.film.products, "flash_check", lambda *a, **k: dict(failing))
+    scene = render.default_scene(name="blink", **{
+        "image.width": 8, "image.height": 8, "observer.placement": "distant",
+        "tracing.method": "auto", "animation.frames": 2, "output.npz": False})
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        render.render_sequence(scene, tmp_path, workers=1)
+    messages = [str(w.message) for w in caught if issubclass(w.category, NullrayWarning)]
+    # WCAG 2.2 SC 2.3.1 is the rule the message names.
+    assert any("5 flashes" in m and "WCAG 2.2 SC 2.3.1" in m for m in messages)

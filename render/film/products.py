@@ -27,7 +27,8 @@ def write_sequence_products(folder, plan, manifest):
     """Write sequence.mp4, sequence.gif, sequence_sheet.png, lightcurve.csv/png, flash_check.json.
 
     The MP4 needs the optional 'video' extra; without it a NullrayWarning says so
-    and the other products are written.
+    and the other products are written.  A film that fails the flash check is
+    also reported as a NullrayWarning.
 
     Parameters
     ----------
@@ -66,10 +67,20 @@ def write_sequence_products(folder, plan, manifest):
     paths["lightcurve_png"] = write_light_curve_png(folder / "lightcurve.png", clocks, fluxes,
                                                     unit)
     flash = flash_check([relative_luminance(f) for f in frames], plan.fps)
+    if not flash["passes"]:
+        warnings.warn(flash_warning(flash), NullrayWarning, stacklevel=2)
     report = json.dumps(flash, indent=1, sort_keys=True).encode()
     paths["flash"] = atomic_write(folder / "flash_check.json", lambda f: f.write(report),
                                   overwrite=True)
     return paths, flash
+
+
+def flash_warning(flash):
+    """The one-line warning of a flash check that fails (:func:`render.film.flash.flash_check`)."""
+    return (f"{flash['worst_flashes']} flashes in the second starting at "
+            f"{flash['worst_start_s']:.2f} s (frame {flash['worst_start_frame']}): more than "
+            "3 per second fails WCAG 2.2 SC 2.3.1 (photosensitive epilepsy); do not screen "
+            "it publicly as is")
 
 
 def _write_light_curve_csv(path, jobs, fluxes):
