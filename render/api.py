@@ -16,7 +16,7 @@ import os
 import warnings
 from pathlib import Path
 
-from .errors import NullrayWarning, OutputFolderError, UsageError
+from .errors import NullrayWarning, OutputFolderError, SceneError, UsageError
 from .film.sequence import render_sequence as _render_sequence_here
 from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
@@ -28,7 +28,7 @@ from .output.products import product_paths, write_products
 from .parallel import (auto_workers, capped_workers, check_scheduler, connect, frame_results,
                        render_still_on_cluster)
 from .scene.keys import keys_reference
-from .scene.loader import default_scene, load_scene, preview_scene
+from .scene.loader import default_scene, load_scene, preview_film, preview_scene
 
 __all__ = ["open_scene", "keys_reference", "render_still", "make_still", "render_sequence",
            "make_measurement"]
@@ -88,7 +88,7 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
     """Render a still and publish its files; return ``(result, paths)``.
 
     Everything that can be refused is refused before any tracing and before the
-    folder is made: the emission table and sky image are read, the targets are
+    folder is made: a scene that would write no file at all, the emission table and sky image are read, the targets are
     checked free (unless ``overwrite``), the scheduler is reached, and the folder
     is checked writable.  Temporaries that killed runs left in the folder are
     swept (:func:`render.output.files.sweep_dead_temporaries`).  A still larger
@@ -104,8 +104,13 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
     prepare_observation(scene)   # reads an emission profile table
     prepare_sky(scene)           # reads a sky panorama
     folder = Path(output_dir)
-    check_free(list(still_paths(scene.document, folder).values())
-               + list(product_paths(scene.document, folder).values()), overwrite)
+    targets = (list(still_paths(scene.document, folder).values())
+               + list(product_paths(scene.document, folder).values()))
+    if not targets:
+        raise SceneError("output.png, output.npz and output.fits are all false, so the still "
+                         "would write nothing; turn one on (e.g. --set output.png=true), or "
+                         "call render.render_still for the arrays alone")
+    check_free(targets, overwrite)
     if scheduler:
         if needs_sensor(scene):
             raise UsageError("--scheduler renders bands of rows, but a sky or "
@@ -151,7 +156,7 @@ def _check_writable_folder(folder):
 
 
 def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, overwrite=False,
-                    progress=None, products=True):
+                    progress=None, products=True, preview=False):
     """Render (or finish) a scene's frame sequence, its video, contact sheet and light curve.
 
     Parameters
@@ -168,6 +173,10 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
         an unreachable one is refused before any file is made.
     overwrite, progress, products
         As for :func:`render.film.sequence.render_sequence`.
+    preview : bool
+        Render the quick look instead (:func:`render.scene.loader.preview_film`: small
+        frames, one order, at most 12 frames with the keyframes at the same moments,
+        into ``output_dir/<scene name>-preview/``); also when ``image.preview`` is true.
 
     Returns
     -------
@@ -175,6 +184,8 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
     """
     if workers is not None and workers < 1:
         raise UsageError(f"--workers {workers} is not allowed; expected N >= 1")
+    if preview or scene["image.preview"]:
+        scene = preview_film(scene)
     for folder in (Path(output_dir), Path(output_dir) / scene["name"]):
         sweep_dead_temporaries(folder)   # what runs killed with SIGKILL left behind
     client = connect(scheduler) if scheduler is not None else None

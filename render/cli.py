@@ -60,6 +60,9 @@ def _parser():
     sequence.add_argument("--scheduler", metavar="ADDRESS",
                           help="Dask distributed scheduler, e.g. tcp://10.0.0.5:8786")
     sequence.add_argument("--quiet", action="store_true", help="print nothing on success")
+    sequence.add_argument("--preview", action="store_true",
+                          help="quick look: at most 12 small one-order frames, keyframes at the "
+                               "same moments, into <name>-preview/")
 
     measure = commands.add_parser(
         "measure", help="measure the shadow against the analytic prediction (exit 1 on a miss)")
@@ -172,15 +175,10 @@ def _sequence(args):
     try:
         result = render_sequence(scene, args.output_dir, workers=args.workers,
                                  scheduler=args.scheduler, overwrite=args.overwrite,
-                                 progress=bar)
+                                 progress=bar, preview=args.preview)
     finally:
         bar.close()
-    flash = result.flash
-    if flash and not flash["passes"]:
-        print(f"nullray: warning: {flash['worst_flashes']} flashes in the second starting at "
-              f"{flash['worst_start_s']:.2f} s (frame {flash['worst_start_frame']}): more than "
-              "3 per second fails WCAG 2.2 SC 2.3.1 (photosensitive epilepsy); do not screen "
-              "it publicly as is", file=sys.stderr)
+    flash = result.flash   # a failed flash check was warned (NullrayWarning) while writing
     if not args.quiet:
         print(f"{len(result.rendered)} frames rendered, {len(result.reused)} already finished, "
               f"in {result.folder}/")

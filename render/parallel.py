@@ -56,10 +56,9 @@ def local_threads(workers, cores=None):
 
 def connect(address, timeout=CONNECT_TIMEOUT_S):
     """A ``dask.distributed.Client`` for ``address``; :class:`SchedulerError` if unreachable."""
-    try:
-        from dask.distributed import Client
-    except ImportError as exc:  # pragma: no cover - dask is a dependency
-        raise SchedulerError(f"--scheduler needs dask.distributed: {exc}") from None
+    _require_cluster_extra()
+    from dask.distributed import Client
+
     _check_reachable(address, timeout)
     try:
         client = Client(address, timeout=timeout, set_as_default=False)
@@ -70,8 +69,21 @@ def connect(address, timeout=CONNECT_TIMEOUT_S):
 
 
 def check_scheduler(address, timeout=CONNECT_TIMEOUT_S):
-    """Raise :class:`SchedulerError` now if ``address`` refuses connections (no Dask needed)."""
+    """Raise :class:`SchedulerError` now if Dask is not installed or ``address`` refuses connections."""
+    _require_cluster_extra()
     _check_reachable(address, timeout)
+
+
+CLUSTER_EXTRA_MISSING = ("--scheduler needs Dask's distributed scheduler, which is the optional "
+                         "'cluster' extra: pip install 'nullray[cluster]'")
+
+
+def _require_cluster_extra():
+    """One line naming the extra to install when dask.distributed is missing."""
+    try:
+        import dask.distributed  # noqa: F401
+    except ImportError:
+        raise SchedulerError(CLUSTER_EXTRA_MISSING) from None
 
 
 def _check_reachable(address, timeout):

@@ -1,7 +1,8 @@
 """Progress reports on stderr: a tqdm bar with ETA on a terminal, plain log lines otherwise.
 
 On a terminal a bar shows rays (stills) or frames (sequences) with the
-estimated time left.  When stderr is not a terminal (a log file, a batch job),
+estimated time left; in a Jupyter notebook the same bar is a notebook widget
+(``tqdm.auto`` picks the kind).  When stderr is not a terminal (a log file, a batch job),
 a sequence writes one line per finished frame and a still writes nothing, so
 logs stay readable.  ``quiet`` silences both.
 """
@@ -19,12 +20,22 @@ def _is_terminal(stream):
         return False
 
 
+def _in_notebook():
+    """True inside a Jupyter kernel, whose stderr is no terminal but can show a widget bar."""
+    shell = getattr(sys.modules.get("IPython"), "get_ipython", lambda: None)()
+    return type(shell).__name__ == "ZMQInteractiveShell"
+
+
+def _shows_bar(stream):
+    return _is_terminal(stream) or _in_notebook()
+
+
 class RayProgress:
     """``progress(done, total)`` callback of :func:`render.geodesics.tracing.trace_bundle` for a still."""
 
     def __init__(self, quiet=False, stream=None, description="tracing"):
         self.stream = stream or sys.stderr
-        self.enabled = not quiet and _is_terminal(self.stream)
+        self.enabled = not quiet and _shows_bar(self.stream)
         self.description = description
         self._bar = None
 
@@ -32,7 +43,7 @@ class RayProgress:
         if not self.enabled:
             return
         if self._bar is None:
-            from tqdm import tqdm
+            from tqdm.auto import tqdm
 
             self._bar = tqdm(total=total, desc=self.description, unit="ray", unit_scale=True,
                              file=self.stream, leave=False, dynamic_ncols=True)
@@ -50,7 +61,7 @@ class FrameProgress:
     def __init__(self, quiet=False, stream=None):
         self.stream = stream or sys.stderr
         self.quiet = quiet
-        self.terminal = _is_terminal(self.stream)
+        self.terminal = _shows_bar(self.stream)
         self._bar = None
         self._started = None
         self._first_done = None
@@ -62,7 +73,7 @@ class FrameProgress:
             self._started = time.monotonic()
             self._first_done = done
             if self.terminal:
-                from tqdm import tqdm
+                from tqdm.auto import tqdm
 
                 self._bar = tqdm(total=total, initial=done, desc="frames", unit="frame",
                                  file=self.stream, dynamic_ncols=True)

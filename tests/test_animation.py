@@ -71,11 +71,99 @@ def test_cubic_reproduces_straight_lines_and_smooth_rests_at_keyframes():
     ({"animation.keyframes": [{"frame": 0, "image.width": 10}]}, "cannot be keyframed"),
     ({"animation.keyframes": [{"frame": 0, "observer.inclination": "x"}]}, "a finite number"),
     ({"animation.keyframes": [{"observer.inclination": 3}]}, "'frame'"),
+    # Keyframes placed by screen time or by a fraction of the film.
+    ({"animation.keyframes": [{"time": -1.0, "observer.inclination": 3}]},
+     r"animation.keyframes\[0\].time = -1.0"),
+    ({"animation.keyframes": [{"at": 1.5, "observer.inclination": 3}]},
+     r"animation.keyframes\[0\].at = 1.5.*0 <= at <= 1"),
+    ({"animation.keyframes": [{"at": "half", "observer.inclination": 3}]}, "'half'"),
+    ({"animation.keyframes": [{"frame": 0, "at": 0.5, "observer.inclination": 3}]},
+     "placed by frame and at"),
+    ({"animation.keyframes": [{"at": 0.6, "observer.inclination": 3},
+                              {"at": 0.2, "observer.inclination": 5}]}, "out of order"),
+    ({"animation.frames": 10, "animation.keyframes": [{"at": 0.5, "observer.inclination": 3},
+                                                      {"frame": 2, "observer.inclination": 5}]},
+     r"frame = 2 \(frame 2\) is out of order"),
+    ({"animation.frames": 12, "animation.fps": 24.0,
+      "animation.keyframes": [{"time": 2.5, "observer.inclination": 3}]},
+     r"time = 2.5 is frame 60, but the sequence has 12 frames"),
 ])
 def test_bad_animation_input_is_one_line(values, message):
     with pytest.raises(SceneError, match=message) as info:
         small(**values)
     assert "\n" not in str(info.value)
+
+
+def keyframed_inclinations(frames):
+    """Inclination per frame of a film whose keyframes sit at 0, 1/4 and 1 of it."""
+    scene = small(**{"animation.frames": frames, "animation.interpolation": "cubic",
+                     "animation.keyframes": [{"at": 0.0, "observer.inclination": 20.0},
+                                             {"at": 0.25, "observer.inclination": 70.0},
+                                             {"at": 1.0, "observer.inclination": 35.0}]})
+    return [job.scene["observer.inclination"] for job in plan_sequence(scene).jobs]
+
+
+def test_keyframes_placed_by_fraction_keep_their_moments_whatever_the_frame_count():
+    # The same fraction of the film gets the same value: frame k of N sits at k / (N - 1),
+    # so fractions 0, 1/8, ..., 1 are frames 0, 1, ..., 8 of 9 and 0, 12, ..., 96 of 97
+    # (common practice: a timeline independent of the frame rate).
+    short = keyframed_inclinations(9)
+    long = keyframed_inclinations(97)
+    for k in range(9):
+        assert long[12 * k] == pytest.approx(short[k], rel=1e-12, abs=1e-12), k
+    # ... and the keyframed values themselves are reached at their fractions.
+    assert short[0] == 20.0 and short[2] == pytest.approx(70.0) and short[8] == 35.0
+
+
+def test_keyframes_placed_by_time_land_on_their_frames():
+    # time t is screen time t: frame t x fps (24 frames per second).
+    scene = small(**{"animation.frames": 25, "animation.fps": 24.0,
+                     "animation.interpolation": "linear", "animation.keyframes": [
+                         {"time": 0.0, "observer.inclination": 20.0},
+                         {"time": 1.0, "observer.inclination": 80.0}]})
+    values = [job.scene["observer.inclination"] for job in plan_sequence(scene).jobs]
+    # Linear between (frame 0, 20) and (frame 24, 80): 2.5 degrees per frame, by hand.
+    assert values[12] == pytest.approx(50.0, abs=1e-12)
+    assert values[24] == pytest.approx(80.0, abs=1e-12)
+
+
+def test_preview_film_keeps_the_keyframes_moments():
+    from render.scene.loader import preview_film
+
+    full = small(**{"animation.frames": 97, "animation.interpolation": "cubic",
+                    "animation.keyframes": [{"frame": 0, "observer.inclination": 20.0},
+                                            {"frame": 24, "observer.inclination": 70.0},
+                                            {"frame": 96, "observer.inclination": 35.0}]})
+    quick = preview_film(full, frames=9)
+    assert quick["animation.frames"] == 9 and quick["name"].endswith("-preview")
+    assert quick["disk.orders"] == 1 and quick["image.width"] <= 160
+    full_values = [job.scene["observer.inclination"] for job in plan_sequence(full).jobs]
+    quick_values = [job.scene["observer.inclination"] for job in plan_sequence(quick).jobs]
+    # Preview frame k shows the full film's frame 12 k: the same moment (fraction k / 8).
+    for k in range(9):
+        assert quick_values[k] == pytest.approx(full_values[12 * k], rel=1e-12), k
+    # The observer's clock spans the same time: 96 x 10 M over 8 frames.
+    assert quick["animation.time_step"] == pytest.approx(96 * 10.0 / 8)
+
+
+def test_sequence_preview_writes_beside_the_full_film(tmp_path, capsys):
+    scene = tmp_path / "film.yaml"
+    scene.write_text(yaml.safe_dump({
+        "observer": {"placement": "distant", "field_of_view": 30.0},
+        "image": {"width": 32, "height": 18}, "tracing": {"method": "auto"},
+        "animation": {"frames": 40, "keyframes": [
+            {"at": 0.0, "observer.inclination": 30.0}, {"at": 1.0, "observer.inclination": 60.0}]},
+    }), encoding="utf-8")
+    full = tmp_path / "out" / "film"
+    full.mkdir(parents=True)
+    (full / "keep.txt").write_text("the full film's folder", encoding="utf-8")
+    status, out, err = run_cli(["sequence", scene, "--preview", "--output-dir",
+                                tmp_path / "out", "--workers", "1", "--quiet"], capsys)
+    assert status == 0, err
+    frames = sorted(p.name for p in (tmp_path / "out" / "film-preview").glob("frame_*.png"))
+    assert frames == [f"frame_{k:05d}.png" for k in range(12)]
+    # The full film's folder is untouched.
+    assert sorted(p.name for p in full.iterdir()) == ["keep.txt"]
 
 
 def test_keyframed_value_out_of_range_names_the_frame():

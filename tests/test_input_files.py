@@ -195,5 +195,5 @@ def test_side_file_named_with_set_is_read_from_the_current_folder(tmp_path, monk
     (work / "mine.csv").write_bytes(b"2,3\n40,1\n")
     monkeypatch.chdir(work)
     scene = load_scene(scene_file, ["emission.profile=mine.csv"])
-    assert scene.side_file("emission.profile") == Path("mine.csv")
+    assert scene.side_file("emission.profile") == Path.cwd() / "mine.csv"   # absolute, for messages
     assert prepare_observation(scene).law.radii == (2.0, 40.0)

@@ -273,11 +273,11 @@ def test_extra_products_of_a_tiled_still_equal_the_untiled_ones(mode, tmp_path):
         assert np.array_equal(hdus[0].data, np.flipud(main), equal_nan=True)
         assert np.array_equal(hdus["REDSHIFT"].data, np.flipud(whole.g[0]), equal_nan=True)
         if mode == "monochromatic":
-            assert len(hdus) == 3
+            assert len(hdus) == 4   # with the SCENE table
             assert np.array_equal(hdus["FLUXPIX"].data,
                                   np.flipud(whole.products["flux_density_jy"]), equal_nan=True)
         else:
-            assert len(hdus) == 2
+            assert len(hdus) == 3   # with the SCENE table
     if mode == "true_colour":
         reference = io.BytesIO()
         np.save(reference, whole.products["rgb_linear"])

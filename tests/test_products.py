@@ -176,7 +176,7 @@ def test_fits_verifies_and_holds_the_maps(tmp_path, monochromatic_still):
     write_fits(path, result)
     with fits.open(path) as hdus:
         hdus.verify("exception")   # FITS Standard 4.0 checks as astropy implements them
-        assert [h.name for h in hdus] == ["PRIMARY", "FLUXPIX", "REDSHIFT"]
+        assert [h.name for h in hdus] == ["PRIMARY", "FLUXPIX", "REDSHIFT", "SCENE"]
         # FITS row 1 is the bottom of the image: the arrays come back flipped.
         np.testing.assert_array_equal(hdus[0].data, np.flipud(result.products["specific_intensity"]))
         np.testing.assert_array_equal(hdus[1].data, np.flipud(result.products["flux_density_jy"]))
@@ -199,5 +199,19 @@ def test_fits_verifies_and_holds_the_maps(tmp_path, monochromatic_still):
         assert header["CDELT2"] == pytest.approx(degrees, rel=1e-12)
         assert -header["CDELT1"] == pytest.approx(degrees, rel=1e-12)
         assert hdus[1].header["BUNIT"] == "Jy/pixel"
+        # Every BUNIT is a unit string astropy's FITS unit parser reads (FITS Standard 4.0,
+        # sec. 4.3), and the intensity's is erg s^-1 cm^-2 Hz^-1 sr^-1 (astropy.units).
+        for hdu in hdus[:3]:
+            u.Unit(hdu.header["BUNIT"], format="fits")
+        assert (u.Unit(header["BUNIT"], format="fits")
+                == u.erg / u.s / u.cm ** 2 / u.Hz / u.sr)
+        # DATE in the ISO 8601 form of FITS Standard 4.0 sec. 4.4.2.1, parsed by astropy.Time.
+        from astropy.time import Time
+        assert Time(header["DATE"], format="isot", scale="utc").jd > 2460000
+        # The SCENE table gives back the scene (YAML read by PyYAML, then validated).
+        import yaml
+        from render.scene.loader import scene_from_dict
+        text = "\n".join(hdus["SCENE"].data["YAML"])
+        assert scene_from_dict(yaml.safe_load(text)).values == scene.values
     with pytest.raises(OutputExists):
         write_fits(path, result)

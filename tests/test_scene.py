@@ -132,6 +132,9 @@ BAD_SCENES = [
     ("name-absolute", "name: /tmp/first\n", ["name", "'/tmp/first'"]),
     ("name-empty", "name: ''\n", ["name", "''"]),
     ("name-number", "name: 5\n", ["name", "5"]),
+    # A still that would write nothing is refused, not rendered (common practice: fail early).
+    ("every-output-off", "output:\n  png: false\n  npz: false\n  fits: false\n",
+     ["output.png", "output.npz", "output.fits", "write nothing"]),
 ]
 
 
@@ -455,5 +458,56 @@ def test_side_files_resolve_from_the_scene_files_folder(tmp_path):
 def test_side_files_of_a_scene_not_read_from_a_file():
     # common practice: without a file to be relative to, a path is relative to the current folder.
     scene = default_scene(**{"sky.image": "pano.png"})
-    assert scene.side_file("sky.image") == Path("pano.png")
+    assert scene.side_file("sky.image") == Path.cwd() / "pano.png"
     assert scene.side_file("emission.profile") is None
+
+
+# --- side files: a path in a scene file is the scene's, a path given with --set the user's ----
+
+PROFILE_CSV = "r,emissivity\n2,1.0\n40,0.01\n"
+
+
+def _scene_in_subfolder(tmp_path, text):
+    folder = tmp_path / "scenes"
+    folder.mkdir()
+    scene = folder / "shot.yaml"
+    scene.write_text(text, encoding="utf-8")
+    return folder, scene
+
+
+def test_side_file_given_with_set_resolves_from_the_current_folder(tmp_path, monkeypatch):
+    _, scene = _scene_in_subfolder(tmp_path, "emission:\n  law: profile\n")
+    monkeypatch.chdir(tmp_path)
+    loaded = load_scene(scene, ["emission.profile=table.csv"])
+    # common practice: a path typed on the command line is relative to the current folder.
+    assert loaded.side_file("emission.profile") == tmp_path / "table.csv"
+    assert "emission.profile" in loaded.user_paths
+
+
+def test_still_with_a_profile_given_on_the_command_line_renders(tmp_path, capsys, monkeypatch):
+    _, scene = _scene_in_subfolder(tmp_path, "emission:\n  law: profile\n"
+                                             "observer:\n  placement: distant\n"
+                                             "image:\n  width: 8\n  height: 8\n"
+                                             "tracing:\n  method: auto\n")
+    (tmp_path / "table.csv").write_text(PROFILE_CSV, encoding="utf-8")
+    monkeypatch.chdir(tmp_path)
+    status, out, err = run_cli(["still", scene, "--set", "emission.profile=table.csv",
+                                "--output-dir", tmp_path / "out", "--quiet"], capsys)
+    assert status == 0, err
+    assert (tmp_path / "out" / "shot.png").exists()
+
+
+@pytest.mark.parametrize("key, extra", [
+    ("emission.profile", ["--set", "emission.law=profile"]),
+    ("sky.image", ["--set", "sky.backdrop=image"]),
+])
+def test_missing_side_file_message_says_where_it_looked(tmp_path, capsys, monkeypatch,
+                                                        no_tracing, key, extra):
+    _, scene = _scene_in_subfolder(tmp_path, "image:\n  width: 8\n  height: 8\n")
+    monkeypatch.chdir(tmp_path)
+    status, out, err = run_cli(["still", scene, *extra, "--set", f"{key}=absent.file",
+                                "--output-dir", tmp_path / "out"], capsys)
+    # The absolute path tried: the current folder's, since the value came from --set.
+    assert_one_line_error(status, out, err, [key, str(tmp_path / "absent.file"),
+                                             "No such file"])
+    assert not (tmp_path / "out").exists()

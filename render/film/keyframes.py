@@ -1,6 +1,9 @@
 """Keyframes: a scene key's value at any frame, interpolated between the keyframes given.
 
-``animation.keyframes`` gives numeric keys at chosen frames; between two
+``animation.keyframes`` gives numeric keys at chosen frames, screen times
+(``time``, seconds) or fractions of the film (``at``, 0 the first frame and 1
+the last; :func:`render.scene.loader.keyframe_position`), so a film previewed
+with fewer frames keeps its keyframes at the same moments; between two
 keyframes a key is interpolated ``linear``, ``smooth`` (smoothstep
 3 s^2 - 2 s^3, at rest at each keyframe) or ``cubic`` (Hermite with
 Catmull–Rom tangents, smooth through the keyframes); before the first and
@@ -13,6 +16,8 @@ Aided Geometric Design, Academic Press, 317 (the cubic's tangents).
 """
 
 import numpy as np
+
+from ..scene.loader import frame_count, keyframe_position
 
 __all__ = ["interpolate", "keyframe_tracks", "values_at"]
 
@@ -64,13 +69,20 @@ def interpolate(points, frame, default="smooth"):
 
 
 def keyframe_tracks(scene):
-    """{key: [(frame, value, interpolation or None), ...]} of a scene's ``animation.keyframes``."""
+    """{key: [(frame, value, interpolation or None), ...]} of a scene's ``animation.keyframes``.
+
+    Keyframes placed by ``time`` or ``at`` are at their (possibly fractional)
+    frame positions in the scene's film.
+    """
+    frames = frame_count(scene.values) or 1
+    fps = scene["animation.fps"]
     tracks = {}
     for entry in scene["animation.keyframes"]:
+        position = keyframe_position(entry, frames, fps)
         for key, value in entry.items():
-            if key not in ("frame", "interpolation"):
+            if key not in ("frame", "time", "at", "interpolation"):
                 tracks.setdefault(key, []).append(
-                    (entry["frame"], value, entry.get("interpolation")))
+                    (position, value, entry.get("interpolation")))
     return tracks
 
 

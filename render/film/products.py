@@ -8,12 +8,15 @@ themselves are :mod:`render.output.video` and :mod:`render.output.files`.
 import csv
 import io
 import json
+import warnings
 from pathlib import Path
 
 import numpy as np
 
+from ..errors import NullrayWarning
 from ..output.files import atomic_write, write_png
-from ..output.video import (FRAME_PATTERN, contact_sheet, write_gif, write_light_curve_png,
+from ..output.video import (FRAME_PATTERN, VIDEO_EXTRA_MISSING, contact_sheet,
+                            video_writer_available, write_gif, write_light_curve_png,
                             write_video)
 from .flash import flash_check, relative_luminance
 
@@ -22,6 +25,10 @@ __all__ = ["write_sequence_products"]
 
 def write_sequence_products(folder, plan, manifest):
     """Write sequence.mp4, sequence.gif, sequence_sheet.png, lightcurve.csv/png, flash_check.json.
+
+    The MP4 needs the optional 'video' extra; without it a NullrayWarning says so
+    and the other products are written.  A film that fails the flash check is
+    also reported as a NullrayWarning.
 
     Parameters
     ----------
@@ -43,8 +50,12 @@ def write_sequence_products(folder, plan, manifest):
     folder = Path(folder)
     count = len(plan.jobs)
     frames = [np.asarray(Image.open(folder / FRAME_PATTERN.format(k))) for k in range(count)]
-    paths = {"mp4": write_video(folder / "sequence.mp4", frames, plan.fps),
-             "gif": write_gif(folder / "sequence.gif", frames, plan.fps)}
+    paths = {}
+    if video_writer_available():
+        paths["mp4"] = write_video(folder / "sequence.mp4", frames, plan.fps)
+    else:
+        warnings.warn(VIDEO_EXTRA_MISSING, NullrayWarning, stacklevel=2)
+    paths["gif"] = write_gif(folder / "sequence.gif", frames, plan.fps)
     clocks = [job.clock for job in plan.jobs]
     labels = [f"{k}  t={c:.4g}M" for k, c in enumerate(clocks)]
     paths["sheet"] = write_png(folder / "sequence_sheet.png",
@@ -56,10 +67,20 @@ def write_sequence_products(folder, plan, manifest):
     paths["lightcurve_png"] = write_light_curve_png(folder / "lightcurve.png", clocks, fluxes,
                                                     unit)
     flash = flash_check([relative_luminance(f) for f in frames], plan.fps)
+    if not flash["passes"]:
+        warnings.warn(flash_warning(flash), NullrayWarning, stacklevel=2)
     report = json.dumps(flash, indent=1, sort_keys=True).encode()
     paths["flash"] = atomic_write(folder / "flash_check.json", lambda f: f.write(report),
                                   overwrite=True)
     return paths, flash
+
+
+def flash_warning(flash):
+    """The one-line warning of a flash check that fails (:func:`render.film.flash.flash_check`)."""
+    return (f"{flash['worst_flashes']} flashes in the second starting at "
+            f"{flash['worst_start_s']:.2f} s (frame {flash['worst_start_frame']}): more than "
+            "3 per second fails WCAG 2.2 SC 2.3.1 (photosensitive epilepsy); do not screen "
+            "it publicly as is")
 
 
 def _write_light_curve_csv(path, jobs, fluxes):

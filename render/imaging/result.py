@@ -1,5 +1,6 @@
 """The arrays of one rendered still."""
 
+import io
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -7,7 +8,7 @@ import numpy as np
 __all__ = ["StillResult"]
 
 
-@dataclass
+@dataclass(repr=False)
 class StillResult:
     """Arrays of one rendered still (row 0 is the top of the image).
 
@@ -50,6 +51,81 @@ class StillResult:
     tables: dict = field(default_factory=dict)
     # Temporary files behind the arrays of a still rendered in tiles (render.imaging.tiling).
     storage: object = field(default=None, repr=False, compare=False)
+
+    def __repr__(self):
+        """A one-line summary (size, spin, inclination, method, mode, fates), never the arrays."""
+        height, width = self.fate.shape[:2]
+        meta = self.metadata
+        scene = meta.get("scene", {})
+        parts = [f"{width}x{height}"]
+        if scene:
+            parts.append(f"name {scene['name']!r}")
+            parts.append(f"spin {scene['black_hole']['spin']:g}")
+            parts.append(f"inclination {scene['observer']['inclination']:g} deg")
+            parts.append(f"mode {scene['observing']['mode']}")
+        if "tracing_method" in meta:
+            parts.append(f"method {meta['tracing_method']}")
+        if "fate_counts" in meta:
+            counts = ", ".join(f"{k} {v}" for k, v in meta["fate_counts"].items())
+            parts.append(f"fates: {counts}")
+        if self.storage is not None:
+            parts.append("tiled (arrays in temporary files)")
+        return f"<StillResult {'; '.join(parts)}>"
+
+    def _repr_png_(self):
+        """The picture as PNG bytes (what a notebook shows for a result)."""
+        from PIL import Image
+
+        buffer = io.BytesIO()
+        Image.fromarray(np.asarray(self.pixels)).save(buffer, format="PNG")
+        return buffer.getvalue()
+
+    def to_xarray(self):
+        """The maps as an ``xarray.Dataset`` with named dimensions and coordinates in M.
+
+        Image maps have dimensions (y, x), per-order maps (order, y, x); the
+        coordinates ``x`` and ``y`` are the image-plane alpha and beta of the
+        pixel centres along the middle row and column (exact for an unrolled
+        image; ``alpha`` and ``beta`` are kept as 2-D maps too), ``order`` counts
+        the crossings.  The attributes are the metadata's numbers and text, the
+        scene as YAML under ``scene``.  Needs the ``xarray`` extra
+        (``pip install 'nullray[xarray]'``).
+
+        Returns
+        -------
+        xarray.Dataset
+        """
+        try:
+            import xarray
+        except ImportError:
+            raise ImportError("StillResult.to_xarray needs xarray: pip install "
+                              "'nullray[xarray]'") from None
+        import json
+
+        import yaml
+
+        height, width = self.fate.shape[:2]
+        orders = self.r.shape[0]
+        data = {}
+        for name, array in self.maps().items():
+            array = np.asarray(array)
+            if array.shape[:2] == (height, width) and array.ndim == 2:
+                data[name] = (("y", "x"), array)
+            elif array.shape[:3] == (orders, height, width) and array.ndim == 3:
+                data[name] = (("order", "y", "x"), array)
+            elif array.shape[:2] == (height, width) and array.ndim == 3:
+                data[name] = (("y", "x", "channel"), array)
+        alpha, beta = np.asarray(self.alpha), np.asarray(self.beta)
+        coords = {"x": ("x", alpha[height // 2, :], {"units": "M", "long_name": "alpha"}),
+                  "y": ("y", beta[:, width // 2], {"units": "M", "long_name": "beta"}),
+                  "order": ("order", np.arange(orders))}
+        attrs = {key: value for key, value in self.metadata.items()
+                 if isinstance(value, (str, int, float, bool)) and value is not None}
+        if "scene" in self.metadata:
+            attrs["scene"] = yaml.safe_dump(self.metadata["scene"], sort_keys=False)
+        if "fate_counts" in self.metadata:
+            attrs["fate_counts"] = json.dumps(self.metadata["fate_counts"])
+        return xarray.Dataset(data, coords=coords, attrs=attrs)
 
     def release(self):
         """Delete the temporary files of a tiled still (its arrays become unusable)."""

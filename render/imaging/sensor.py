@@ -183,7 +183,7 @@ def prepare_sky(scene):
         texture = _panorama(str(path), stat.st_mtime_ns, stat.st_size,
                             budget * 1e9 * PANORAMA_BUDGET_SHARE)
     except InputFileError as exc:
-        raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc}") from None
+        raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc} (looked for {path})") from None
     except PanoramaMemoryError as exc:
         raise _scene_error(f"sky.image = {scene['sky.image']!r} {exc} (a panorama may use "
                            f"{PANORAMA_BUDGET_SHARE:.0%} of tracing.memory_budget = {budget:g} "

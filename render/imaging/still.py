@@ -2,10 +2,11 @@
 
 import dataclasses
 import time
+from datetime import datetime, timezone
 
 import numpy as np
 
-from ..about import __version__
+from ..about import __version__, software_versions
 from ..light.disk import on_disk, redshift_factor
 from ..light.observing import PER_ORDER_PRODUCTS, prepare_observation, shade
 from ..geodesics.integrator import FATE_DISK, FATE_NAMES
@@ -131,6 +132,8 @@ def _still_metadata(scene, raw, shaded, negative, maps):
     r_plus, _ = horizon_radii(spin)
     return {
         "program": "nullray", "version": __version__,
+        "versions": software_versions(),
+        "rendered_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "scene": scene.document, "scene_source": scene.source,
         "units": "geometric, G = c = M = 1: lengths and times in M, angles in rad",
         "conventions": {

@@ -28,6 +28,7 @@ L(mu) is the limb-darkening factor of :func:`render.light.emission.limb_darkenin
 at the emission angle in the emitter's frame (:func:`render.light.emission.emission_cosine`).
 """
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -36,7 +37,7 @@ from .color import (automatic_reference_luminance, desaturate_into_gamut, expose
                     srgb_encode, to_uint8, to_uint16, tone_map, xyz_to_linear_srgb)
 from .emission import (EmissionTableError, NovikovThorne, PowerLaw, RadialProfile,
                        emission_cosine, limb_darkening, observed_bolometric)
-from ..errors import SceneError
+from ..errors import NullrayWarning, SceneError
 from ..units import angular_gravitational_radius_uas
 from .cie import blackbody_xyz_sum
 from .emission import observed_specific_intensity
@@ -142,7 +143,7 @@ def prepare_observation(scene):
         try:
             obs.law = RadialProfile.from_csv(path)
         except EmissionTableError as exc:
-            raise _scene_error(str(exc)) from None
+            raise _scene_error(f"emission.profile = {scene['emission.profile']!r}: {exc}") from None
         info["profile"] = str(path)
     else:
         mass = scene["black_hole.mass"]
@@ -299,9 +300,8 @@ def shade(obs, scene, raw, g, hits, bundle):
         # that reaches the border is cropped, and the totals miss what lies outside.
         cropped = disk_reaches_border(hits, scene["image.height"], scene["image.width"])
         if cropped:
-            info.setdefault("warnings", []).append(
-                f"the disk reaches the image border: the {obs.mode} counts only what the "
-                "field of view contains (widen observer.field_of_view)")
+            _warn(info, f"the disk reaches the image border: the {obs.mode} counts only what "
+                  "the field of view contains (widen observer.field_of_view)")
     if obs.mode == "spectrum":
         tables["spectrum"] = disk_spectrum(obs, scene, r, g, weight, hits)
         info["spectrum_total_jy"] = {
@@ -373,3 +373,12 @@ def disk_spectrum(obs, scene, r, g, weight, hits):
                                scene["observer.inclination"], scene["black_hole.mass"],
                                scene["black_hole.distance"], obs.limb)
     return {"frequency_hz": nu, "flux_relativistic_jy": relativistic, "flux_flat_jy": flat}
+
+
+def _warn(info, message):
+    """Record a warning in the still's metadata and warn Python callers (NullrayWarning).
+
+    The command line prints each once, as one ``nullray: warning:`` line.
+    """
+    info.setdefault("warnings", []).append(message)
+    warnings.warn(message, NullrayWarning, stacklevel=3)

@@ -685,9 +685,7 @@ def format_table(measurement):
 
 def overlay_png_bytes(measurement, scene):
     """The image with the analytic curve and the measured boundary drawn over it (PNG)."""
-    import matplotlib
-
-    matplotlib.use("Agg")
+    # A bare Figure on its own Agg canvas: the user's matplotlib backend is left as it is.
     from matplotlib.figure import Figure
 
     result = measurement.result

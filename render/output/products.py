@@ -29,11 +29,13 @@ FITS layout
 The primary HDU holds the mode's main map (monochromatic: I_nu; bolometric
 and true colour: bolometric intensity; line: line intensity); image
 extensions hold the others (``FLUXPIX``, Jy per pixel; ``REDSHIFT``, g of the
-first crossing).  FITS rows run upwards, so the arrays are flipped
-vertically.  The sky axes are ``RA---TAN`` / ``DEC--TAN`` with CRVAL = 0,
+first crossing), and a binary table ``SCENE`` holds the scene as YAML, one
+row per line.  FITS rows run upwards, so the arrays are flipped vertically.  The sky axes are ``RA---TAN`` / ``DEC--TAN`` with CRVAL = 0,
 CRPIX at the image centre and CDELT1 = -pixel scale (east to the left, the
 FITS habit), CDELT2 = +pixel scale, in degrees; +x of the image is the
-Bardeen alpha axis.  Header cards: BUNIT, OBSFREQ (Hz), BHMASS (M_sun),
+Bardeen alpha axis.  Header cards: BUNIT (a FITS unit string astropy reads,
+empty for the arbitrary units of ``power_law`` and ``profile`` and for g),
+DATE (UTC, when the still was rendered), OBSFREQ (Hz), BHMASS (M_sun),
 DISTPC (pc), BHSPIN, INCLIN (deg), plus the mode and emission law.
 """
 
@@ -45,12 +47,12 @@ from pathlib import Path
 
 import numpy as np
 
-from .files import STREAM_CHUNK_BYTES, _npy_file, atomic_write, check_free
+from .files import STREAM_CHUNK_BYTES, _npy_file, atomic_path, atomic_write, check_free
 from ..light.observing import pixel_angle_rad
 from ..scene.loader import scene_from_dict
 
 __all__ = ["product_paths", "write_products", "write_fits", "write_png16", "write_npy",
-           "write_table_csv", "fits_hdus", "read_rows"]
+           "write_table_csv", "fits_hdus", "scene_table_hdu", "read_rows"]
 
 
 def product_paths(scene_document, folder):
@@ -221,35 +223,48 @@ def write_png16(path, rgb16, overwrite=False, block_rows=None):
 
 
 def _main_map(result):
+    """The primary HDU's map, its BUNIT (FITS units, astropy-readable) and the card's comment."""
     mode = result.metadata["scene"]["observing"]["mode"]
     law = result.metadata["scene"]["emission"]["law"]
     if mode == "monochromatic":
-        return result.products["specific_intensity"], "erg/(s cm2 Hz sr)"
+        return result.products["specific_intensity"], "erg/(s cm2 Hz sr)", "specific intensity"
     if mode == "line":
-        return result.products["line_intensity"], "arbitrary (line intensity)"
-    unit = "erg/(s cm2 sr)" if law == "novikov_thorne" else "arbitrary"
-    return result.intensity, unit
+        # FITS has no unit for "arbitrary": an empty BUNIT, and the comment says so.
+        return result.products["line_intensity"], "", "arbitrary units (line intensity)"
+    if law == "novikov_thorne":
+        return result.intensity, "erg/(s cm2 sr)", "bolometric intensity"
+    return result.intensity, "", "arbitrary units of the emission law"
+
+
+def _fits_date(metadata):
+    """The DATE card's value: when the still was rendered (UTC), to the second."""
+    from datetime import datetime, timezone
+
+    stamp = metadata.get("rendered_utc")
+    when = datetime.fromisoformat(stamp) if stamp else datetime.now(timezone.utc)
+    return when.astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%M:%S")
 
 
 def _fits_layout(result):
-    """[(header, array, index)] of a still's FITS HDUs; the data is ``array[index]``, unflipped.
+    """[(header, array, index)] of a still's FITS image HDUs; the data is ``array[index]``, unflipped.
 
     The headers are complete (mandatory cards for (H, W) float64 data, EXTEND in
     the primary one) but no data array of the image's size is made.
     """
     from astropy.io import fits
 
-
     meta = result.metadata
     doc = meta["scene"]
     scene = scene_from_dict(doc, source=meta.get("scene_source", "<dict>"), default_name=doc["name"])
     pixel_deg = float(np.degrees(pixel_angle_rad(scene)))
-    data, unit = _main_map(result)
+    data, unit, what = _main_map(result)
     height, width = data.shape
+    date = _fits_date(meta)
 
-    def header(bunit, extname=None):
+    def header(bunit, comment, extname=None):
         h = fits.Header()
-        h["BUNIT"] = (bunit, "unit of the pixel values")
+        h["BUNIT"] = (bunit, comment)
+        h["DATE"] = (date, "UTC date the still was rendered")
         h["CTYPE1"], h["CTYPE2"] = ("RA---TAN", "sky offset, +x = Bardeen alpha"), "DEC--TAN"
         h["CUNIT1"], h["CUNIT2"] = "deg", "deg"
         h["CRPIX1"] = ((width + 1) / 2.0, "reference pixel: image centre")
@@ -271,10 +286,12 @@ def _fits_layout(result):
             h["EXTNAME"] = extname
         return h
 
-    layout = [(header(unit), data, None)]
+    layout = [(header(unit, what), data, None)]
     if "flux_density_jy" in result.products:
-        layout.append((header("Jy/pixel", "FLUXPIX"), result.products["flux_density_jy"], None))
-    layout.append((header("", "REDSHIFT"), result.g, 0))
+        layout.append((header("Jy/pixel", "flux density per pixel", "FLUXPIX"),
+                       result.products["flux_density_jy"], None))
+    layout.append((header("", "redshift factor g = nu_obs/nu_em (no unit)", "REDSHIFT"),
+                   result.g, 0))
     # A zero-strided stand-in gives astropy the data shape and type for the mandatory
     # cards (BITPIX, NAXISn, PCOUNT, GCOUNT, EXTEND) without an image-sized array.
     stand_in = np.broadcast_to(np.float64(0.0), (height, width))
@@ -284,8 +301,25 @@ def _fits_layout(result):
     return [(hdu.header, array, index) for hdu, (_, array, index) in zip(hdus, layout)]
 
 
+def scene_table_hdu(metadata):
+    """The ``SCENE`` extension: the full scene as YAML, one table row per line (ASCII).
+
+    Read it back with ``"\\n".join(hdus["SCENE"].data["YAML"])``.
+    """
+    from astropy.io import fits
+    import yaml
+
+    text = yaml.safe_dump(metadata["scene"], sort_keys=False, allow_unicode=False, width=70)
+    lines = text.splitlines() or [""]
+    width = max(1, max(len(line) for line in lines))
+    column = fits.Column(name="YAML", format=f"{width}A", array=np.array(lines, dtype=f"S{width}"))
+    hdu = fits.BinTableHDU.from_columns([column], name="SCENE")
+    hdu.header["COMMENT"] = "the scene of this still (every key, defaults filled in), as YAML"
+    return hdu
+
+
 def fits_hdus(result):
-    """astropy HDUList of a still's physical maps (see the module doc), held in memory."""
+    """astropy HDUList of a still's physical maps and scene (see the module doc), in memory."""
     from astropy.io import fits
 
     hdus = []
@@ -293,52 +327,57 @@ def fits_hdus(result):
         data = np.asarray(array if index is None else array[index], dtype=np.float64)
         kind = fits.PrimaryHDU if k == 0 else fits.ImageHDU
         hdus.append(kind(np.ascontiguousarray(np.flipud(data)), header=header))
+    hdus.append(scene_table_hdu(result.metadata))
     return fits.HDUList(hdus)
 
 
-FITS_BLOCK = 2880  # FITS Standard 4.0, sec. 3.1: headers and data fill 2880-byte blocks
-
-
 def write_fits(path, result, overwrite=False):
-    """Write the FITS file of a still atomically, each map in blocks of rows.
+    """Write the FITS file of a still atomically, each map streamed in blocks of rows.
 
-    Each HDU is its astropy header (padded to 2880 bytes with its END card) and
-    then the map as big-endian IEEE float64, rows flipped so that FITS row 1 is
-    the bottom of the image, zero-padded to a multiple of 2880 bytes -- the
-    bytes astropy's own writer produces for the same data (tests/test_memory.py),
-    without holding a whole map in memory.
+    Each map goes through astropy's streaming writer (``astropy.io.fits.StreamingHDU``):
+    its header, then the rows as float64, flipped so that FITS row 1 is the
+    bottom of the image, a block at a time, so no whole map is held in memory.
+    The small ``SCENE`` table (:func:`scene_table_hdu`) follows, streamed the same way.
 
     References
     ----------
-    FITS Standard 4.0 (IAU FITS Working Group 2016), sec. 3.3.2, 4.4.1 and 5.3.
+    FITS Standard 4.0 (IAU FITS Working Group 2016), sec. 3.3.2, 4.4.1, 5.3 and 7.3.
     """
+    from astropy.io import fits
+
     layout = _fits_layout(result)
     height, width = result.fate.shape
     rows = _block_rows(result, 8 * width)
+    table = scene_table_hdu(result.metadata)
+    table_bytes = np.frombuffer(table.data.tobytes(), dtype=np.uint8)
 
-    def write(handle):
+    with atomic_path(path, overwrite) as tmp:
         for header, array, index in layout:
-            handle.write(header.tostring().encode("ascii"))
-            for stop in range(height, 0, -rows):
-                start = max(0, stop - rows)
-                block = read_rows(array, start, stop, index)[::-1]
-                handle.write(np.ascontiguousarray(block, dtype=">f8"))
-                del block
-            handle.write(b"\0" * (-(8 * width * height) % FITS_BLOCK))
-
-    return atomic_write(path, write, overwrite)
+            stream = fits.StreamingHDU(str(tmp), header)
+            try:
+                for stop in range(height, 0, -rows):
+                    start = max(0, stop - rows)
+                    block = read_rows(array, start, stop, index)[::-1]
+                    stream.write(np.ascontiguousarray(block, dtype=">f8"))
+                    del block
+            finally:
+                stream.close()
+        stream = fits.StreamingHDU(str(tmp), table.header)
+        try:
+            stream.write(table_bytes)
+        finally:
+            stream.close()
+    return Path(path)
 
 
 def _plot(path, overwrite, figure_maker, table, metadata):
-    import matplotlib
+    # A bare Figure draws on its own Agg canvas: no pyplot, so the user's backend is untouched.
+    from matplotlib.figure import Figure
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    fig = figure_maker(plt, table, metadata)
+    fig = Figure(figsize=(6.4, 4.4))
+    figure_maker(fig, table, metadata)
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=110)
-    plt.close(fig)
     data = buffer.getvalue()
     return atomic_write(path, lambda f: f.write(data), overwrite)
 
@@ -350,8 +389,8 @@ def _title(metadata):
             f"D = {doc['black_hole']['distance']:.3g} pc")
 
 
-def _spectrum_figure(plt, table, metadata):
-    fig, ax = plt.subplots(figsize=(6.4, 4.4))
+def _spectrum_figure(fig, table, metadata):
+    ax = fig.add_subplot()
     nu = table["frequency_hz"]
     for key, label in (("flux_relativistic_jy", "ray-traced (relativistic)"),
                        ("flux_flat_jy", "flat space (no relativistic effects)")):
@@ -365,8 +404,8 @@ def _spectrum_figure(plt, table, metadata):
     return fig
 
 
-def _line_figure(plt, table, metadata):
-    fig, ax = plt.subplots(figsize=(6.4, 4.4))
+def _line_figure(fig, table, metadata):
+    ax = fig.add_subplot()
     ax.step(table["energy_kev"], table["counts"], where="mid")
     rest = metadata["observing"]["line_energy_kev"]
     ax.axvline(rest, color="grey", linestyle=":", label=f"rest energy {rest:g} keV")

@@ -31,6 +31,21 @@ def _even(pixels):
     return np.pad(pixels, ((0, h % 2), (0, w % 2), (0, 0)), mode="edge")
 
 
+VIDEO_EXTRA_MISSING = ("the MP4 needs imageio with its ffmpeg, the optional 'video' extra: pip "
+                       "install 'nullray[video]'; the frames, GIF, contact sheet and light "
+                       "curve are written without it")
+
+
+def video_writer_available():
+    """Whether the MP4 writer's packages (imageio, imageio-ffmpeg: the 'video' extra) import."""
+    try:
+        import imageio.v3  # noqa: F401
+        import imageio_ffmpeg  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
 def write_video(path, frames, fps):
     """Write RGB frames as H.264 MP4 (imageio with imageio-ffmpeg's ffmpeg), atomically.
 
@@ -88,16 +103,15 @@ def contact_sheet(frames, columns=8, labels=None, max_tiles=64):
 
 
 def write_light_curve_png(path, clocks, fluxes, unit):
-    """Plot flux against the observer's time (matplotlib, Agg) and write it as PNG, atomically.
+    """Plot flux against the observer's time (a matplotlib Figure on its Agg canvas) as PNG, atomically.
 
     ``unit`` names the observer's clock on the time axis (retarded time or proper time).
     """
-    import matplotlib
+    # A bare Figure, not pyplot: the user's matplotlib backend is left as it is.
+    from matplotlib.figure import Figure
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    figure, axes = plt.subplots(figsize=(6, 3.2), dpi=100)
+    figure = Figure(figsize=(6, 3.2), dpi=100)
+    axes = figure.add_subplot()
     axes.plot(clocks, fluxes, marker=".", lw=1)
     axes.set_xlabel(f"observer time ({unit}) [M]")
     axes.set_ylabel("total flux [law units x M^2]")
@@ -105,5 +119,4 @@ def write_light_curve_png(path, clocks, fluxes, unit):
     figure.tight_layout()
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png")
-    plt.close(figure)
     return atomic_write(path, lambda f: f.write(buffer.getvalue()), overwrite=True)

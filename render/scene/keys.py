@@ -29,6 +29,9 @@ INTERPOLATIONS = ("linear", "smooth", "cubic")
 # Keyframes may drive these sections' plain numeric keys.
 KEYFRAME_SECTIONS = ("observer", "black_hole", "disk", "emission", "pattern")
 MAX_KEYFRAMES = 10000
+# Where a keyframe sits: a frame number, a screen time in seconds, or a fraction of the film
+# (0 the first frame, 1 the last), so that a film with fewer frames keeps its moments.
+KEYFRAME_PLACEMENTS = ("frame", "time", "at")
 
 
 @dataclass(frozen=True)
@@ -226,9 +229,10 @@ KEYS = {spec.path: spec for spec in [
        "1/(r^1.5 + a) (a geodesic in the equatorial plane).", low=-1.0, high=1.0),
     _k("animation.interpolation", "choice", "smooth", "-", ", ".join(INTERPOLATIONS),
        "Default interpolation between keyframes.", choices=INTERPOLATIONS),
-    _k("animation.keyframes", "keyframes", (), "-", "a list of {frame: n, dotted.key: number, "
-       "interpolation: ...}", "Values of numeric observer, black_hole, disk, emission or "
-       "pattern keys at given frames, in increasing frame order."),
+    _k("animation.keyframes", "keyframes", (), "-", "a list of {frame: n, time: s or at: fraction; "
+       "dotted.key: number, interpolation: ...}", "Values of numeric observer, "
+       "black_hole, disk, emission or pattern keys at given frames, screen times (s) or "
+       "fractions of the film (0 first frame, 1 last), in increasing order."),
     _k("pattern.shape", "choice", "none", "-", "none, spot, spiral",
        "Brightness pattern moving with the gas: a Gaussian spot on a Keplerian orbit, or "
        "spiral arms turning at the local Keplerian angular velocity.",

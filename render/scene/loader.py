@@ -20,7 +20,8 @@ import yaml
 from ..errors import SceneError
 from ..guards.reading import InputFileError, read_bounded
 from ..camera.observers import Viewpoint, check_observer_position
-from .keys import (INTERPOLATIONS, KEYFRAME_SECTIONS, KEYS, MAX_KEYFRAMES, SECTIONS, SYNONYMS)
+from .keys import (INTERPOLATIONS, KEYFRAME_PLACEMENTS, KEYFRAME_SECTIONS, KEYS, MAX_KEYFRAMES,
+                   SECTIONS, SYNONYMS)
 from ..geodesics.tracing import TraceSettings, resolve_method
 from ..spacetime.kerr import horizon_radii, isco_radius
 from ..imaging.sensor import check_sensor, check_untiled
@@ -36,13 +37,16 @@ __all__ = [
     "apply_overrides",
     "default_scene",
     "preview_scene",
+    "preview_film",
+    "keyframe_position",
+    "frame_count",
 ]
 
 MAX_SCENE_BYTES = 256 * 1024
 MAX_NESTING = 8
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Scene:
     """A validated scene: ``values`` maps every dotted key to its value.
 
@@ -62,6 +66,14 @@ class Scene:
 
     def __getitem__(self, key):
         return self.values[key]
+
+    def __repr__(self):
+        """A one-line summary: name, source, size, spin, inclination, observer, method, mode."""
+        v = self.values
+        return (f"<Scene {v['name']!r} from {self.source}: {v['image.width']}x{v['image.height']}, "
+                f"spin {v['black_hole.spin']:g}, inclination {v['observer.inclination']:g} deg, "
+                f"{v['observer.placement']} observer, method {v['tracing.method']}, "
+                f"mode {v['observing.mode']}>")
 
     @property
     def spin(self):
@@ -84,7 +96,8 @@ class Scene:
         with ``--allow-outside-files`` (``allow_outside_files=True`` of
         :func:`load_scene`).  A path the user gave with ``--set``, or in a scene
         not read from a file, is the user's own: it is taken from the current
-        folder and may be anywhere.
+        folder and may be anywhere.  The path returned is absolute, so that a
+        message about it says where it was looked for.
 
         Parameters
         ----------
@@ -103,15 +116,21 @@ class Scene:
         Examples
         --------
         >>> scene = scene_from_dict({"sky": {"image": "pano.png"}}, source="scenes/night.yaml")
-        >>> scene.side_file("sky.image").as_posix(), scene.side_file("emission.profile")
-        ('scenes/pano.png', None)
+        >>> scene.side_file("sky.image") == Path.cwd() / "scenes" / "pano.png"
+        True
+        >>> scene.side_file("emission.profile") is None
+        True
+        >>> typed = scene_from_dict({"sky": {"image": "pano.png"}}, source="scenes/night.yaml",
+        ...                         user_paths={"sky.image"})
+        >>> typed.side_file("sky.image") == Path.cwd() / "pano.png"
+        True
         """
         name = self.values[key]
         if name is None:
             return None
         path = Path(name)
         if self.source in ("<defaults>", "<dict>") or key in self.user_paths:
-            return path
+            return path.absolute()
         folder = Path(self.source).parent
         if not path.is_absolute():
             path = folder / path
@@ -120,7 +139,7 @@ class Scene:
                 f"{key} = {_describe(name)} is outside the scene file's folder "
                 f"{_describe(str(folder))}; a scene reads side files from its own folder only. "
                 f"Pass --allow-outside-files to read it, or name it yourself with --set {key}=...")
-        return path
+        return path.absolute()
 
     def viewpoint(self):
         """The observer set-up of this scene (:class:`render.camera.observers.Viewpoint`)."""
@@ -220,7 +239,14 @@ def _coerce(spec, value):
 
 
 def _coerce_keyframes(key, value):
-    """A list of {frame: n, dotted.key: number, interpolation: ...}, frames increasing."""
+    """A list of {frame: n | time: s | at: fraction, dotted.key: number, interpolation: ...}.
+
+    Each entry is placed by exactly one of ``frame`` (a whole number >= 0),
+    ``time`` (seconds of screen time >= 0) or ``at`` (a fraction of the film,
+    0 to 1); entries placed the same way must increase.  The order across
+    placements and the film's end are checked with the frame count
+    (:func:`_check_keyframe_order`).
+    """
     if value is None:
         return ()
     if not isinstance(value, (list, tuple)):
@@ -228,42 +254,68 @@ def _coerce_keyframes(key, value):
     if len(value) > MAX_KEYFRAMES:
         raise SceneError(f"{key} has {len(value)} entries; at most {MAX_KEYFRAMES} are allowed")
     entries = []
-    previous = None
+    previous = {}
     for index, entry in enumerate(value):
         where = f"{key}[{index}]"
-        if not isinstance(entry, dict) or "frame" not in entry:
-            _fail(where, entry, "a mapping with 'frame' and dotted numeric keys")
-        frame = entry["frame"]
-        if isinstance(frame, bool) or not isinstance(frame, int) or frame < 0:
-            _fail(f"{where}.frame", frame, "a whole number >= 0")
-        if previous is not None and frame <= previous:
-            raise SceneError(f"{where}.frame = {frame} is out of order; keyframes must have "
-                             f"increasing frames (previous entry: frame {previous})")
-        previous = frame
-        clean = {"frame": frame}
+        placement = _keyframe_placement(where, entry)
+        place = entry[placement]
+        if placement in previous and place <= previous[placement]:
+            raise SceneError(f"{where}.{placement} = {place} is out of order; keyframes must "
+                             f"increase (previous entry: {placement} {previous[placement]})")
+        previous[placement] = place
+        clean = {placement: place}
         for name, number in entry.items():
-            if name == "frame":
+            if name == placement:
                 continue
             if name == "interpolation":
                 if number not in INTERPOLATIONS:
                     _fail(f"{where}.interpolation", number, f"one of: {', '.join(INTERPOLATIONS)}")
                 clean[name] = number
                 continue
-            spec = KEYS.get(name) if isinstance(name, str) else None
-            if (spec is None or spec.kind != "float"
-                    or name.split(".")[0] not in KEYFRAME_SECTIONS):
-                hint = "" if spec is not None else _suggest(str(name))
-                raise SceneError(f"{where}: {_describe(name)} cannot be keyframed; allowed: "
-                                 f"numeric keys of {', '.join(KEYFRAME_SECTIONS)} "
-                                 f"(e.g. observer.inclination){hint}")
-            if isinstance(number, bool) or not isinstance(number, (int, float)) or not (
-                    _is_finite(number)):
-                _fail(f"{where}.{name}", number, "a finite number")
-            clean[name] = float(number)
+            clean[name] = _keyframed_number(where, name, number)
         if len(clean) == 1 + ("interpolation" in clean):
-            raise SceneError(f"{where} (frame {frame}) sets no key")
+            raise SceneError(f"{where} ({placement} {place}) sets no key")
         entries.append(clean)
     return tuple(entries)
+
+
+def _keyframe_placement(where, entry):
+    """Which of frame, time or at places a keyframe entry (exactly one), its value checked."""
+    wanted = "a mapping with one of 'frame', 'time' or 'at' and dotted numeric keys"
+    if not isinstance(entry, dict):
+        _fail(where, entry, wanted)
+    given = [name for name in KEYFRAME_PLACEMENTS if name in entry]
+    if len(given) != 1:
+        if given:
+            raise SceneError(f"{where} is placed by {' and '.join(given)}; give one of "
+                             "'frame', 'time' or 'at'")
+        _fail(where, entry, wanted)
+    placement = given[0]
+    place = entry[placement]
+    if placement == "frame":
+        if isinstance(place, bool) or not isinstance(place, int) or place < 0:
+            _fail(f"{where}.frame", place, "a whole number >= 0")
+    elif isinstance(place, bool) or not isinstance(place, (int, float)) or not _is_finite(place):
+        _fail(f"{where}.{placement}", place, "a number (seconds >= 0)" if placement == "time"
+              else "a fraction of the film, 0 <= at <= 1")
+    elif placement == "time" and not 0 <= place <= 3600:
+        _fail(f"{where}.time", place, "seconds of screen time, 0 <= time <= 3600")
+    elif placement == "at" and not 0 <= place <= 1:
+        _fail(f"{where}.at", place, "a fraction of the film, 0 <= at <= 1")
+    return placement
+
+
+def _keyframed_number(where, name, number):
+    """A keyframed key's value: a finite number of a numeric key in a keyframable section."""
+    spec = KEYS.get(name) if isinstance(name, str) else None
+    if spec is None or spec.kind != "float" or name.split(".")[0] not in KEYFRAME_SECTIONS:
+        hint = "" if spec is not None else _suggest(str(name))
+        raise SceneError(f"{where}: {_describe(name)} cannot be keyframed; allowed: "
+                         f"numeric keys of {', '.join(KEYFRAME_SECTIONS)} "
+                         f"(e.g. observer.inclination){hint}")
+    if isinstance(number, bool) or not isinstance(number, (int, float)) or not _is_finite(number):
+        _fail(f"{where}.{name}", number, "a finite number")
+    return float(number)
 
 
 def _is_finite(value):
@@ -385,6 +437,42 @@ def frame_count(values):
     return None
 
 
+def keyframe_position(entry, frames, fps):
+    """The frame position (possibly fractional) of a keyframe entry in a film of ``frames``.
+
+    ``frame: n`` is frame n; ``time: t`` is screen time t seconds, frame t x fps;
+    ``at: s`` is the fraction s of the film, frame s x (frames - 1), so it lands at the
+    same moment whatever the frame count.
+
+    Examples
+    --------
+    >>> keyframe_position({"at": 0.5}, 13, 24.0), keyframe_position({"time": 0.25}, 13, 24.0)
+    (6.0, 6.0)
+    """
+    if "frame" in entry:
+        return entry["frame"]
+    if "time" in entry:
+        return entry["time"] * fps
+    return entry["at"] * (max(frames, 1) - 1)
+
+
+def _check_keyframe_order(keyframes, frames, fps):
+    """Keyframes placed in increasing order across placements, none after the film's end."""
+    previous = None
+    for index, entry in enumerate(keyframes):
+        position = keyframe_position(entry, frames, fps)
+        placement = next(name for name in KEYFRAME_PLACEMENTS if name in entry)
+        where = f"animation.keyframes[{index}].{placement} = {entry[placement]}"
+        if position > frames - 1 + 1e-9:
+            raise SceneError(f"{where} is frame {position:g}, but the sequence has {frames} "
+                             f"frames (0..{frames - 1}); place it with 'at' (a fraction of the "
+                             "film) to keep it whatever the frame count")
+        if previous is not None and position <= previous + 1e-9:
+            raise SceneError(f"{where} (frame {position:g}) is out of order; keyframes must "
+                             f"increase (previous entry: frame {previous:g})")
+        previous = position
+
+
 def _check_animation(values, inner):
     """Cross-key checks of the animation and pattern sections (docs/animation.md)."""
     if values["animation.frames"] is not None and values["animation.duration"] is not None:
@@ -392,9 +480,8 @@ def _check_animation(values, inner):
                          "(duration x fps sets the frame count)")
     frames = frame_count(values)
     keyframes = values["animation.keyframes"]
-    if keyframes and frames is not None and keyframes[-1]["frame"] >= frames:
-        raise SceneError(f"animation.keyframes sets frame {keyframes[-1]['frame']}, but the "
-                         f"sequence has {frames} frames (0..{frames - 1})")
+    if keyframes and frames is not None:
+        _check_keyframe_order(keyframes, frames, values["animation.fps"])
     if values["animation.camera_path"] != "still" and values["observer.placement"] != "camera":
         raise SceneError(f"animation.camera_path = {values['animation.camera_path']!r} needs "
                          "observer.placement = 'camera' (a distant observer cannot move)")
@@ -653,4 +740,50 @@ def preview_scene(scene):
     values["name"] = f"{values['name']}-preview"[:100]
     return scene_from_dict(nest_values(values), source=scene.source,
                            default_name=values["name"], user_paths=scene.user_paths,
+                           allow_outside_files=scene.allow_outside_files)
+
+
+
+PREVIEW_FRAMES = 12
+
+
+def preview_film(scene, frames=PREVIEW_FRAMES):
+    """The quick-look version of a film: preview stills, at most ``frames`` frames.
+
+    Each frame is a :func:`preview_scene` still; the film keeps its moments:
+    every keyframe is re-placed by ``at`` (its fraction of the full film), the
+    observer's clock per frame grows so that the frames span the same time, and
+    the frame rate drops so that the film lasts as long (at least 1 per second).
+    The name gets ``-preview``, so the full film's folder is never touched.
+
+    Examples
+    --------
+    >>> from render import default_scene
+    >>> film = default_scene(**{"animation.frames": 121, "animation.keyframes": [
+    ...     {"frame": 60, "observer.inclination": 30.0}]})
+    >>> quick = preview_film(film, frames=11)
+    >>> quick["animation.frames"], quick["animation.keyframes"][0]["at"], quick["name"]
+    (11, 0.5, 'scene-preview')
+    >>> quick["animation.time_step"], round(quick["animation.fps"], 4)   # 24 x 11 / 121
+    (120.0, 2.1818)
+    """
+    full = frame_count(scene.values)
+    small = preview_scene(scene)
+    if full is None:   # no film: the sequence refuses it with its own message
+        return small
+    count = max(1, min(frames, full))
+    fps = scene["animation.fps"]
+    values = dict(small.values)
+    values["animation.keyframes"] = [
+        {**{k: v for k, v in entry.items() if k not in KEYFRAME_PLACEMENTS},
+         "at": keyframe_position(entry, full, fps) / (full - 1) if full > 1 else 0.0}
+        for entry in scene["animation.keyframes"]]
+    values["animation.frames"] = count
+    values["animation.duration"] = None
+    if count > 1:
+        values["animation.time_step"] = scene["animation.time_step"] * (full - 1) / (count - 1)
+    values["animation.fps"] = min(KEYS["animation.fps"].high,
+                                  max(KEYS["animation.fps"].low, fps * count / full))
+    return scene_from_dict(nest_values(values), source=scene.source, default_name=values["name"],
+                           user_paths=scene.user_paths,
                            allow_outside_files=scene.allow_outside_files)
