@@ -42,6 +42,17 @@ def assert_one_line_error(status, out, err, fragments):
 #   ergoregion boundary in the equatorial plane r = 1 + sqrt(1 - a^2 cos^2 theta) = 2 M for
 #   every spin (MTW 1973, sec. 33.8).
 BAD_SCENES = [
+    ("polarisation-model", "polarisation:\n  model: radial\n",
+     ["polarisation.model", "'radial'", "electron_scattering"]),
+    ("polarisation-degree-above-one", "polarisation:\n  degree: 1.5\n",
+     ["polarisation.degree", "1.5", "0 <= degree <= 1"]),
+    ("polarisation-degree-negative", "polarisation:\n  degree: -0.1\n",
+     ["polarisation.degree", "-0.1"]),
+    ("polarisation-angle", "polarisation:\n  angle: 200\n", ["polarisation.angle", "200"]),
+    ("polarisation-ticks-number", "polarisation:\n  ticks: 1\n",
+     ["polarisation.ticks", "1", "true or false"]),
+    ("polarisation-camera-on-axis", "observer:\n  placement: camera\n  inclination: 0\n"
+     "polarisation:\n  model: constant\n", ["polarisation.model", "'constant'", "axis"]),
     ("unknown-key", "black_hole:\n  spn: 0.5\n",
      ["black_hole.spn", "0.5", "did you mean 'black_hole.spin'"]),
     ("unknown-section", "blackhole:\n  spin: 0.5\n",

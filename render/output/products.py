@@ -88,9 +88,13 @@ def write_products(result, folder="outputs", overwrite=False):
                   chunk_bytes=_block_rows(result, linear[:1].nbytes) * linear[:1].nbytes)
     if "spectrum_csv" in paths:
         table = result.tables["spectrum"]
+        polarised = ("; stokes_q_jy, stokes_u_jy: disk-integrated Q_nu, U_nu in Jy; "
+                     "polarisation_angle_deg: IAU, from north through east"
+                     if "stokes_q_jy" in table else "")
         write_table_csv(paths["spectrum_csv"], table, overwrite,
                         header="# disk-integrated F_nu in Jy; relativistic: ray-traced image; "
-                               "flat: same local emission without relativistic effects")
+                               "flat: same local emission without relativistic effects"
+                               + polarised)
         _plot(paths["spectrum_png"], overwrite, _spectrum_figure, table, result.metadata)
     if "line_csv" in paths:
         table = result.tables["line"]
@@ -275,6 +279,8 @@ def _fits_layout(result):
     if "flux_density_jy" in result.products:
         layout.append((header("Jy/pixel", "FLUXPIX"), result.products["flux_density_jy"], None))
     layout.append((header("", "REDSHIFT"), result.g, 0))
+    if "stokes_q" in result.products:
+        layout.extend(_polarisation_layout(result, header, unit))
     # A zero-strided stand-in gives astropy the data shape and type for the mandatory
     # cards (BITPIX, NAXISn, PCOUNT, GCOUNT, EXTEND) without an image-sized array.
     stand_in = np.broadcast_to(np.float64(0.0), (height, width))
@@ -282,6 +288,19 @@ def _fits_layout(result):
                         + [fits.ImageHDU(stand_in, header=h) for h, _, _ in layout[1:]])
     hdus.update_extend()
     return [(hdu.header, array, index) for hdu, (_, array, index) in zip(hdus, layout)]
+
+
+def _polarisation_layout(result, header, unit):
+    """The Stokes I, Q, U, degree and angle HDUs (IAU angle: from north through east)."""
+    layout = []
+    for name, bunit, key in (("STOKESI", unit, "stokes_i"), ("STOKESQ", unit, "stokes_q"),
+                             ("STOKESU", unit, "stokes_u"), ("POLDEG", "", "polarised_degree"),
+                             ("POLANG", "deg", "polarisation_angle")):
+        h = header(bunit, name)
+        h["POLCONV"] = ("IAU", "angle from north (up) through east (left)")
+        h["STOKESV"] = (0.0, "circular polarisation: none")
+        layout.append((h, result.products[key], None))
+    return layout
 
 
 def fits_hdus(result):
