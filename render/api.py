@@ -22,6 +22,7 @@ from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
 from .light.observing import prepare_observation
 from .measure.shadow_measurement import measure_paths, measure_scene, write_measurement
+from .measure.visibility_products import read_baselines, visibility_paths, write_visibilities
 from .output.files import check_free, still_paths, write_still
 from .output.products import product_paths, write_products
 from .parallel import (auto_workers, capped_workers, check_scheduler, connect, frame_results,
@@ -94,9 +95,11 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
         scene = preview_scene(scene)
     prepare_observation(scene)   # reads an emission profile table
     prepare_sky(scene)           # reads a sky panorama
+    baselines = read_baselines(scene)   # reads the baselines table of the visibilities
     folder = Path(output_dir)
     check_free(list(still_paths(scene.document, folder).values())
-               + list(product_paths(scene.document, folder).values()), overwrite)
+               + list(product_paths(scene.document, folder).values())
+               + [folder / name for name in visibility_paths(scene).values()], overwrite)
     if scheduler:
         if needs_sensor(scene):
             raise UsageError("--scheduler renders bands of rows, but a sky or "
@@ -107,6 +110,7 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
     try:
         paths = write_still(result, folder, overwrite=overwrite)
         paths.update(write_products(result, folder, overwrite=overwrite))
+        paths.update(write_visibilities(result, scene, folder, overwrite, baselines))
     finally:
         result.release()
     return result, paths
