@@ -342,7 +342,7 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
     polarised = obs.polarisation.model != "none" and alpha is not None
     if polarised:
         degree, evpa = observed_polarisation(scene.viewpoint(), obs.polarisation, raw, bundle,
-                                             alpha, beta, mu)
+                                             alpha, beta, mu, hits)
         products.update(polarised_products(per_crossing, degree, evpa, hits))
         if obs.mode == "spectrum":
             tables["spectrum"].update(polarised_spectrum(obs, scene, r, g, weight, hits,

@@ -72,6 +72,7 @@ from numba import njit, prange
 from ..camera.observers import camera_photons
 
 __all__ = ["POLARISATION_MODELS", "Polarisation", "chandrasekhar_degree",
+           "chandrasekhar_degree_exact",
            "chandrasekhar_h_function", "walker_penrose", "emitted_kappa",
            "distant_screen_vector", "camera_screen_vectors", "evpa_from_screen",
            "stokes_from_crossings", "crossing_kappa_signs", "observed_polarisation"]
@@ -147,14 +148,33 @@ def chandrasekhar_h_function(mu, kind):
     return value.reshape(mu.shape)
 
 
+def chandrasekhar_degree_exact(mu):
+    """:func:`chandrasekhar_degree` from the H-functions at every point (slow: N x nodes)."""
+    mu = np.asarray(mu, dtype=float)
+    safe = np.clip(np.nan_to_num(mu, nan=1.0), 0.0, 1.0)
+    h = float(chandrasekhar_h_function(1.0, "r")) / float(chandrasekhar_h_function(1.0, "l"))
+    c = h * (1.0 + LIMB_DEGREE) / ((1.0 - h) - LIMB_DEGREE * (1.0 + h))
+    i_l = h * (1.0 + c) * chandrasekhar_h_function(safe, "l")
+    i_r = chandrasekhar_h_function(safe, "r") * (safe + c)
+    return np.where(np.isnan(mu), np.nan, (i_r - i_l) / (i_r + i_l))
+
+
+@functools.lru_cache(maxsize=None)
+def _degree_table():
+    """p on a grid uniform in s = sqrt(mu), where p is smooth (H has mu log mu terms at 0)."""
+    s = np.linspace(0.0, 1.0, 4097)
+    return s, chandrasekhar_degree_exact(s * s)
+
+
 def chandrasekhar_degree(mu):
     """Degree of linear polarisation of an electron-scattering atmosphere at emission cosine mu.
 
     p = (I_r - I_l) / (I_r + I_l), I_l = q H_l(mu), I_r = H_r(mu)(mu + c), with
     q = h (1 + c), h = H_r(1) / H_l(1), from p(1) = 0 (no preferred direction along
     the normal), and c from Chandrasekhar's limb value p(0) = (c - q)/(c + q) = 11.713 %
-    (c = 0.873, as in his sec. 70).
-    Positive p: the E-vector is parallel to the surface.  NaN stays NaN.
+    (c = 0.873, as in his sec. 70).  Positive p: the E-vector is parallel to the
+    surface.  Interpolated (linearly in sqrt(mu), error below 1e-7) from a table of
+    :func:`chandrasekhar_degree_exact`.  NaN stays NaN.
 
     References
     ----------
@@ -166,12 +186,9 @@ def chandrasekhar_degree(mu):
     0.0
     """
     mu = np.asarray(mu, dtype=float)
-    safe = np.clip(np.nan_to_num(mu, nan=1.0), 0.0, 1.0)
-    h = float(chandrasekhar_h_function(1.0, "r")) / float(chandrasekhar_h_function(1.0, "l"))
-    c = h * (1.0 + LIMB_DEGREE) / ((1.0 - h) - LIMB_DEGREE * (1.0 + h))
-    i_l = h * (1.0 + c) * chandrasekhar_h_function(safe, "l")
-    i_r = chandrasekhar_h_function(safe, "r") * (safe + c)
-    return np.where(np.isnan(mu), np.nan, (i_r - i_l) / (i_r + i_l))
+    s, table = _degree_table()
+    with np.errstate(invalid="ignore"):
+        return np.interp(np.sqrt(np.clip(mu, 0.0, 1.0)), s, table) + 0.0 * mu
 
 
 @njit(cache=True)
@@ -226,8 +243,11 @@ def _emitter_tetrad(r, a, frame):
 
 
 @njit(cache=True)
-def _emitted_one(r, lam, eta, a, sign_r, sign_theta, chi, k, frame, out):
-    """kappa of one crossing's unit polarisation vector at angle chi from the surface direction."""
+def _emitted_one(r, lam, eta, a, sign_r, sign_theta, chi, k, frame, out, n, par, perp, f):
+    """kappa of one crossing's unit polarisation vector at angle chi from the surface direction.
+
+    ``n``, ``par``, ``perp`` (3) and ``f`` (4) are scratch arrays.
+    """
     out[0], out[1] = 0.0, 0.0
     if not _equatorial_momentum(r, lam, eta, a, sign_r, sign_theta, k):
         return
@@ -236,7 +256,6 @@ def _emitted_one(r, lam, eta, a, sign_r, sign_theta, chi, k, frame, out):
     g_pp = r * r + a * a + 2.0 * a * a / r
     g_rr = r * r / (r * r - 2.0 * r + a * a)
     # Frame components of k: k_(i) = g(k, e_i); n = spatial part / energy.
-    n = np.empty(3)
     energy = -(g_tt * k[0] * frame[0, 0] + g_tp * (k[0] * frame[0, 3] + k[3] * frame[0, 0])
                + g_pp * k[3] * frame[0, 3])
     n[0] = g_rr * k[1] * frame[1, 1] / energy
@@ -244,14 +263,14 @@ def _emitted_one(r, lam, eta, a, sign_r, sign_theta, chi, k, frame, out):
     n[2] = (g_tt * k[0] * frame[3, 0] + g_tp * (k[0] * frame[3, 3] + k[3] * frame[3, 0])
             + g_pp * k[3] * frame[3, 3]) / energy
     # f_par = n x N with N = e_theta (the frame's second axis), f_perp = n x f_par.
-    par = np.array([-n[2], 0.0, n[0]])
-    size = math.sqrt(par[0] ** 2 + par[2] ** 2)
+    size = math.sqrt(n[2] ** 2 + n[0] ** 2)
     if size < 1e-12:
         return   # emitted along the normal: no direction parallel to the surface
-    par /= size
-    perp = np.array([n[1] * par[2] - n[2] * par[1], n[2] * par[0] - n[0] * par[2],
-                     n[0] * par[1] - n[1] * par[0]])
-    f = np.zeros(4)
+    par[0], par[1], par[2] = -n[2] / size, 0.0, n[0] / size
+    perp[0] = n[1] * par[2] - n[2] * par[1]
+    perp[1] = n[2] * par[0] - n[0] * par[2]
+    perp[2] = n[0] * par[1] - n[1] * par[0]
+    f[:] = 0.0
     for i in range(3):
         comp = math.cos(chi) * par[i] + math.sin(chi) * perp[i]
         for mu_index in range(4):
@@ -262,17 +281,19 @@ def _emitted_one(r, lam, eta, a, sign_r, sign_theta, chi, k, frame, out):
 @njit(cache=True, parallel=True)
 def _emitted_kernel(r, lam, eta, a, sign_r, sign_theta, chi, kappa1, kappa2):
     n_rays, n_orders = r.shape
-    for i in prange(n_rays):
-        k = np.empty(4)
+    block = 512   # rays per scratch allocation (one per block, not per ray)
+    for b in prange((n_rays + block - 1) // block):
+        k, f, out = np.empty(4), np.empty(4), np.empty(2)
         frame = np.empty((4, 4))
-        out = np.empty(2)
-        for j in range(n_orders):
-            if not (r[i, j] == r[i, j]) or not (chi[i, j] == chi[i, j]):
-                kappa1[i, j], kappa2[i, j] = np.nan, np.nan
-                continue
-            _emitted_one(r[i, j], lam[i], eta[i], a, sign_r[i, j], sign_theta[i, j],
-                         chi[i, j], k, frame, out)
-            kappa1[i, j], kappa2[i, j] = out[0], out[1]
+        n, par, perp = np.empty(3), np.empty(3), np.empty(3)
+        for i in range(b * block, min((b + 1) * block, n_rays)):
+            for j in range(n_orders):
+                if not (r[i, j] == r[i, j]) or not (chi[i, j] == chi[i, j]):
+                    kappa1[i, j], kappa2[i, j] = np.nan, np.nan
+                    continue
+                _emitted_one(r[i, j], lam[i], eta[i], a, sign_r[i, j], sign_theta[i, j],
+                             chi[i, j], k, frame, out, n, par, perp, f)
+                kappa1[i, j], kappa2[i, j] = out[0], out[1]
 
 
 def emitted_kappa(r, lam, eta, spin, sign_r, sign_theta, chi):
@@ -423,7 +444,7 @@ def stokes_from_crossings(intensity, degree, evpa, hits):
     return i, q, u, (i.sum(axis=1), q.sum(axis=1), u.sum(axis=1))
 
 
-def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu):
+def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu, hits=None):
     """Degree and IAU angle (rad) at the observer of every crossing, (N, orders) each.
 
     Parameters
@@ -438,6 +459,8 @@ def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu):
         The rays' image-plane points (M), as the bundle was made from them.
     mu : ndarray (N, orders)
         Emission cosines in the emitters' frames.
+    hits : ndarray of bool (N, orders), optional
+        The crossings that shine; the others are skipped (NaN angle, zero degree).
 
     Returns
     -------
@@ -447,8 +470,8 @@ def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu):
     degree, chi = polarisation.emitted(mu)
     sign_r, sign_theta = crossing_kappa_signs(raw["inward"], bundle.states[:, 2],
                                               bundle.states[:, 3])
-    kappa1, kappa2 = emitted_kappa(raw["r"], bundle.lam, bundle.eta, view.spin, sign_r,
-                                   sign_theta, chi)
+    r = raw["r"] if hits is None else np.where(hits, raw["r"], np.nan)
+    kappa1, kappa2 = emitted_kappa(r, bundle.lam, bundle.eta, view.spin, sign_r, sign_theta, chi)
     alpha = np.asarray(alpha, dtype=float).reshape(-1, 1)
     beta = np.asarray(beta, dtype=float).reshape(-1, 1)
     if view.placement == "distant":
@@ -460,7 +483,7 @@ def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu):
     roll = math.radians(view.roll_deg)
     e_x = math.cos(roll) * e_a + math.sin(roll) * e_b
     e_y = -math.sin(roll) * e_a + math.cos(roll) * e_b
-    undefined = (kappa1 == 0.0) & (kappa2 == 0.0)
+    undefined = ~((kappa1 != 0.0) | (kappa2 != 0.0))   # NaN (skipped) counts as undefined
     evpa = np.where(undefined, np.nan, evpa_from_screen(e_x, e_y))
     return np.where(undefined, 0.0, degree), evpa
 

@@ -255,8 +255,9 @@ KEYS = {spec.path: spec for spec in [
     _k("polarisation.ticks", "bool", False, "-", "true, false",
        "Draw polarisation ticks (length ~ degree, along the E-vector) over the PNG."),
     _k("visibilities.compute", "bool", False, "-", "true, false",
-       "Also compute complex visibilities of the still (needs a physical pixel scale: "
-       "monochromatic mode; docs/polarisation.md)."),
+       "Also write the still's complex visibilities, radial profile and ring diameter "
+       "(pixel scale from mass and distance; Jy in the monochromatic mode; "
+       "docs/polarisation.md)."),
     _k("visibilities.padding", "int", 4, "-", "1 <= padding <= 16",
        "Zero padding of the FFT: the transform grid is padding x the image size.",
        low=1, high=16),
