@@ -277,9 +277,7 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
         Crossings that shine.
     bundle : RayBundle
     alpha, beta : ndarray, optional
-        The rays' image-plane points (M); with them, a scene with
-        ``polarisation.model`` other than none also gets Stokes maps
-        (:func:`polarised_products`).
+        The rays' image-plane points (M): given, polarisation is shaded too.
 
     Returns
     -------
@@ -339,17 +337,27 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
         pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
         products["line_intensity"] = image
         info.update(line_info)
-    polarised = obs.polarisation.model != "none" and alpha is not None
-    if polarised:
-        degree, evpa = observed_polarisation(scene.viewpoint(), obs.polarisation, raw, bundle,
-                                             alpha, beta, mu, hits)
-        products.update(polarised_products(per_crossing, degree, evpa, hits))
-        if obs.mode == "spectrum":
-            tables["spectrum"].update(polarised_spectrum(obs, scene, r, g, weight, hits,
-                                                         degree, evpa, tables["spectrum"]))
+    if obs.polarisation.model != "none" and alpha is not None:
+        _add_polarisation(obs, scene, raw, bundle, (alpha, beta), (mu, per_crossing, g, weight),
+                          hits, products, tables)
     if obs.mode in ("bolometric", "true_colour", "spectrum") and law.name == "novikov_thorne":
         info["units"] = "intensity: bolometric, erg s^-1 cm^-2 sr^-1"
     return Shaded(intensity=intensity, pixels=pixels, products=products, tables=tables, info=info)
+
+
+def _add_polarisation(obs, scene, raw, bundle, points, crossings, hits, products, tables):
+    """Add the Stokes maps (and the spectrum's Q, U) of shaded crossings, in place.
+
+    ``points`` are the rays' (alpha, beta); ``crossings`` their (mu, per-crossing
+    intensity, g, limb weight), each (N, orders).
+    """
+    mu, per_crossing, g, weight = crossings
+    degree, evpa = observed_polarisation(scene.viewpoint(), obs.polarisation, raw, bundle,
+                                         points[0], points[1], mu, hits)
+    products.update(polarised_products(per_crossing, degree, evpa, hits))
+    if obs.mode == "spectrum":
+        tables["spectrum"].update(polarised_spectrum(obs, scene, raw["r"], g, weight, hits,
+                                                     degree, evpa, tables["spectrum"]))
 
 
 def polarised_products(per_crossing, degree, evpa, hits):
