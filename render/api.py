@@ -22,6 +22,7 @@ from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
 from .light.observing import prepare_observation
 from .measure.shadow_measurement import measure_paths, measure_scene, write_measurement
+from .measure.visibility_products import read_baselines, visibility_paths, write_visibilities
 from .output.files import (check_free, published_together, still_paths, sweep_dead_temporaries,
                            write_still)
 from .output.products import product_paths, write_products
@@ -103,9 +104,11 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
         scene = preview_scene(scene)
     prepare_observation(scene)   # reads an emission profile table
     prepare_sky(scene)           # reads a sky panorama
+    baselines = read_baselines(scene)   # reads the baselines table of the visibilities
     folder = Path(output_dir)
     targets = (list(still_paths(scene.document, folder).values())
-               + list(product_paths(scene.document, folder).values()))
+               + list(product_paths(scene.document, folder).values())
+               + [folder / name for name in visibility_paths(scene).values()])
     if not targets:
         raise SceneError("output.png, output.npz and output.fits are all false, so the still "
                          "would write nothing; turn one on (e.g. --set output.png=true), or "
@@ -124,6 +127,7 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
         with published_together(folder):
             paths = write_still(result, folder, overwrite=overwrite)
             paths.update(write_products(result, folder, overwrite=overwrite))
+            paths.update(write_visibilities(result, scene, folder, overwrite, baselines))
     finally:
         result.release()
     return result, paths

@@ -42,6 +42,21 @@ def assert_one_line_error(status, out, err, fragments):
 #   ergoregion boundary in the equatorial plane r = 1 + sqrt(1 - a^2 cos^2 theta) = 2 M for
 #   every spin (MTW 1973, sec. 33.8).
 BAD_SCENES = [
+    ("polarisation-model", "polarisation:\n  model: radial\n",
+     ["polarisation.model", "'radial'", "electron_scattering"]),
+    ("polarisation-degree-above-one", "polarisation:\n  degree: 1.5\n",
+     ["polarisation.degree", "1.5", "0 <= degree <= 1"]),
+    ("polarisation-degree-negative", "polarisation:\n  degree: -0.1\n",
+     ["polarisation.degree", "-0.1"]),
+    ("polarisation-angle", "polarisation:\n  angle: 200\n", ["polarisation.angle", "200"]),
+    ("polarisation-ticks-number", "polarisation:\n  ticks: 1\n",
+     ["polarisation.ticks", "1", "true or false"]),
+    ("visibilities-padding-zero", "visibilities:\n  padding: 0\n",
+     ["visibilities.padding", "0", "1 <= padding <= 16"]),
+    ("visibilities-compute-word", "visibilities:\n  compute: yes please\n",
+     ["visibilities.compute", "'yes please'"]),
+    ("polarisation-camera-on-axis", "observer:\n  placement: camera\n  inclination: 0\n"
+     "polarisation:\n  model: constant\n", ["polarisation.model", "'constant'", "axis"]),
     ("unknown-key", "black_hole:\n  spn: 0.5\n",
      ["black_hole.spn", "0.5", "did you mean 'black_hole.spin'"]),
     ("unknown-section", "blackhole:\n  spin: 0.5\n",
@@ -403,6 +418,16 @@ BAD_SCENES_WITH_FILES = [
      ["observing.spectrum_high", "observing.spectrum_low"]),
     ("negative-opacity", "emission:\n  law: novikov_thorne\n  opacity: -1\n", {},
      ["emission.opacity", "-1"]),
+    ("baselines-missing", "visibilities:\n  compute: true\n  baselines: absent.csv\n", {},
+     ["visibilities.baselines", "absent.csv", "cannot be read"]),
+    ("baselines-wrong-columns", "visibilities:\n  compute: true\n  baselines: b.csv\n",
+     {"b.csv": b"x,y\n1,2\n"}, ["b.csv", "u_glambda", "u_m"]),
+    ("baselines-metres-without-frequency", "visibilities:\n  compute: true\n  baselines: b.csv\n",
+     {"b.csv": b"u_m,v_m\n1e6,0\n"}, ["b.csv", "monochromatic"]),
+    ("baselines-not-numbers", "visibilities:\n  compute: true\n  baselines: b.csv\n",
+     {"b.csv": b"u_glambda,v_glambda\nfar,1\n"}, ["b.csv", "not a number"]),
+    ("baselines-empty", "visibilities:\n  compute: true\n  baselines: b.csv\n",
+     {"b.csv": b"u_glambda,v_glambda\n"}, ["b.csv", "no baselines"]),
 ]
 
 

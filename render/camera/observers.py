@@ -61,6 +61,7 @@ __all__ = [
     "observer_frame",
     "check_observer_position",
     "FRAMES",
+    "camera_photons",
 ]
 
 # Observer placements: a camera at a finite radius, or the exact observer at infinity.
@@ -313,6 +314,31 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
     states[:, 3] = sin_o * mino_theta  # dmu/dsigma = -sin(theta) dtheta/dsigma
     states[:, 4] = phi0
     return RayBundle(states, lam, eta, 1.0 / energy, u)
+
+
+def camera_photons(x, y, spin, distance, inclination_deg, frame="zamo"):
+    """(k, tetrad, n) of the photons reaching a camera (off the axis, at rest in ``frame``).
+
+    ``k`` (4, N) is each photon's contravariant momentum per unit conserved
+    energy (p_t = -1), ``tetrad`` the camera's frame (:func:`observer_frame`) and
+    ``n`` (N, 3) the photon's direction of travel on (e_r, e_theta, e_phi), for
+    quantities carried along the ray such as the polarisation
+    (:mod:`render.light.polarisation`).
+    """
+    x = np.asarray(x, dtype=float).ravel()
+    y = np.asarray(y, dtype=float).ravel()
+    r = float(distance)
+    theta, sin_o, _ = polar_position(float(inclination_deg))
+    if sin_o == 0.0:
+        raise ValueError("camera_photons needs a camera off the spin axis")
+    n = np.stack(_travel_directions(x, y, r), axis=1)
+    tetrad = observer_frame(float(spin), r, theta, frame)
+    p = tetrad[0][:, None] + (n @ tetrad[1:]).T
+    sigma, _, _ = metric_functions(r, theta, float(spin))
+    g_tt = -(1.0 - 2.0 * r / sigma)
+    g_tphi = -2.0 * float(spin) * r * sin_o ** 2 / sigma
+    energy = -(g_tt * p[0] + g_tphi * p[3])
+    return p / energy, tetrad, n
 
 
 def _travel_directions(x, y, r):

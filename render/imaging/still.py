@@ -13,6 +13,7 @@ from ..geodesics.integrator import FATE_DISK, FATE_NAMES
 from ..geodesics.tracing import energy_signs, trace
 from ..spacetime.kerr import horizon_radii, isco_radius
 from .result import StillResult
+from .ticks import draw_ticks
 from .tiling import plan_still, render_in_tiles
 from .sensor import check_untiled, finish_still, halo_rows, needs_sensor, prepare_sky
 
@@ -52,11 +53,27 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps
     if needs_sensor(scene):
         prepare_sky(scene)  # a bad sky image fails before any tracing too
     if plan.tiles == 1:
-        return _render_band(scene, observation, None, progress, maps)
-    return render_in_tiles(
+        return _with_ticks(scene, _render_band(scene, observation, None, progress, maps))
+    result = render_in_tiles(
         scene, plan, lambda rows, band_progress: _render_band(scene, observation, rows,
                                                               band_progress, maps),
         workdir=workdir, progress=progress)
+    if scene["polarisation.ticks"]:
+        result.metadata.setdefault("warnings", []).append(
+            "polarisation.ticks: not drawn on a still rendered in tiles")
+    return result
+
+
+def _with_ticks(scene, result):
+    """The still with polarisation ticks over its picture, when the scene asks for them.
+
+    Only an untiled still gets them (a tiled one keeps its picture and says so).
+    """
+    if not scene["polarisation.ticks"] or "stokes_q" not in result.products:
+        return result
+    p = result.products
+    result.pixels = draw_ticks(result.pixels, p["stokes_i"], p["stokes_q"], p["stokes_u"])
+    return result
 
 
 def _render_band(scene, observation, rows, progress, maps=True):
@@ -199,7 +216,7 @@ def trace_and_shade(scene, observation, alpha, beta, bundle, progress=None, maps
     """
     raw = trace(scene.trace_settings(), alpha, beta, bundle, progress, maps)
     g, hits = shining_crossings(scene, raw, bundle)
-    shaded = shade(observation, scene, raw, g, hits, bundle)
+    shaded = shade(observation, scene, raw, g, hits, bundle, alpha, beta)
     return raw, g, hits, shaded
 
 

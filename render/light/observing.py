@@ -41,6 +41,7 @@ from ..errors import NullrayWarning, SceneError
 from ..units import angular_gravitational_radius_uas
 from .cie import blackbody_xyz_sum
 from .emission import observed_specific_intensity
+from .polarisation import Polarisation, observed_polarisation, stokes_from_crossings
 from .spectra import flat_space_spectrum, image_spectrum, line_profile, redshift_spread
 from .thermal import accretion_rate_g_per_s, cgs, radiative_efficiency
 
@@ -52,7 +53,7 @@ MODES = ("bolometric", "monochromatic", "true_colour", "spectrum", "line")
 COLOUR_EXPOSURES = ("auto", "fixed")
 THERMAL_MODES = ("monochromatic", "true_colour", "spectrum")
 # Products with one value per order (shape (N, orders)); the others are per pixel.
-PER_ORDER_PRODUCTS = ("emission_cosine",)
+PER_ORDER_PRODUCTS = ("emission_cosine", "stokes_i_order", "stokes_q_order", "stokes_u_order")
 
 
 def _scene_error(message):
@@ -83,6 +84,12 @@ def check_observing(values):
     if not values["observing.spectrum_high"] > values["observing.spectrum_low"]:
         raise _scene_error(f"observing.spectrum_high = {values['observing.spectrum_high']!r} is "
                            "not allowed; expected a frequency above observing.spectrum_low")
+    if values["polarisation.model"] != "none" and values["observer.placement"] == "camera":
+        if not 0.0 < values["observer.inclination"] < 180.0:
+            raise _scene_error("polarisation.model = "
+                               f"{values['polarisation.model']!r} needs a camera off the spin "
+                               "axis (0 < observer.inclination < 180); got "
+                               f"{values['observer.inclination']!r}")
     if not values["observing.line_high"] > values["observing.line_low"]:
         raise _scene_error(f"observing.line_high = {values['observing.line_high']!r} is not "
                            "allowed; expected a value above observing.line_low")
@@ -126,6 +133,7 @@ class Observation:
     accretion_rate_g_s: float = None
     efficiency: float = None
     info: dict = field(default_factory=dict)
+    polarisation: Polarisation = field(default_factory=Polarisation)
 
 
 def prepare_observation(scene):
@@ -163,6 +171,13 @@ def prepare_observation(scene):
         info["frequency_hz"] = obs.frequency_hz
     if obs.mode == "true_colour" and scene["observing.colour_exposure"] == "fixed":
         obs.colour_reference = float(scene["observing.colour_reference"])
+    obs.polarisation = Polarisation(scene["polarisation.model"], scene["polarisation.degree"],
+                                    scene["polarisation.angle"])
+    if obs.polarisation.model != "none":
+        info["polarisation"] = {
+            "model": obs.polarisation.model,
+            "angle_convention": "IAU: from north (image up) through east (image left), deg",
+            "stokes": "Q = p I cos 2 EVPA, U = p I sin 2 EVPA, V = 0"}
     obs.info = info
     return obs
 
@@ -248,7 +263,7 @@ def disk_reaches_border(hits, height, width):
     return bool(grid[0].any() or grid[-1].any() or grid[:, 0].any() or grid[:, -1].any())
 
 
-def shade(obs, scene, raw, g, hits, bundle):
+def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
     """Shade the crossings of a traced bundle for the prepared observation.
 
     Parameters
@@ -262,6 +277,8 @@ def shade(obs, scene, raw, g, hits, bundle):
     hits : ndarray of bool (N, orders)
         Crossings that shine.
     bundle : RayBundle
+    alpha, beta : ndarray, optional
+        The rays' image-plane points (M): given, polarisation is shaded too.
 
     Returns
     -------
@@ -272,7 +289,8 @@ def shade(obs, scene, raw, g, hits, bundle):
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
     mu, weight = _weights(obs, r, bundle.eta[:, None], g, bundle.energy_ratio[:, None], hits)
     with np.errstate(invalid="ignore"):
-        bolometric = _summed(observed_bolometric(g, law.intensity(r)) * weight, hits)
+        per_crossing = observed_bolometric(g, law.intensity(r)) * weight
+    bolometric = _summed(per_crossing, hits)
     info = dict(obs.info)
     products = {}
     if obs.limb != "none" or obs.mode != "bolometric" or law.name != "power_law":
@@ -283,8 +301,8 @@ def shade(obs, scene, raw, g, hits, bundle):
     intensity = bolometric
     if obs.mode == "monochromatic":
 
-        intensity = _summed(observed_specific_intensity(obs.frequency_hz, g, r, law) * weight,
-                            hits)
+        per_crossing = observed_specific_intensity(obs.frequency_hz, g, r, law) * weight
+        intensity = _summed(per_crossing, hits)
         products["specific_intensity"] = intensity
         products["bolometric_intensity"] = bolometric
         info["units"] = "intensity: erg s^-1 cm^-2 Hz^-1 sr^-1"
@@ -319,9 +337,70 @@ def shade(obs, scene, raw, g, hits, bundle):
         pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
         products["line_intensity"] = image
         info.update(line_info)
+    if obs.polarisation.model != "none" and alpha is not None:
+        _add_polarisation(obs, scene, raw, bundle, (alpha, beta), (mu, per_crossing, g, weight),
+                          hits, products, tables)
     if obs.mode in ("bolometric", "true_colour", "spectrum") and law.name == "novikov_thorne":
         info["units"] = "intensity: bolometric, erg s^-1 cm^-2 sr^-1"
     return Shaded(intensity=intensity, pixels=pixels, products=products, tables=tables, info=info)
+
+
+def _add_polarisation(obs, scene, raw, bundle, points, crossings, hits, products, tables):
+    """Add the Stokes maps (and the spectrum's Q, U) of shaded crossings, in place.
+
+    ``points`` are the rays' (alpha, beta); ``crossings`` their (mu, per-crossing
+    intensity, g, limb weight), each (N, orders).
+    """
+    mu, per_crossing, g, weight = crossings
+    degree, evpa = observed_polarisation(scene.viewpoint(), obs.polarisation, raw, bundle,
+                                         points[0], points[1], mu, hits)
+    products.update(polarised_products(per_crossing, degree, evpa, hits))
+    if obs.mode == "spectrum":
+        tables["spectrum"].update(polarised_spectrum(obs, scene, raw["r"], g, weight, hits,
+                                                     degree, evpa, tables["spectrum"]))
+
+
+def polarised_products(per_crossing, degree, evpa, hits):
+    """Stokes maps of the crossings' light: per order and summed, degree and IAU angle.
+
+    ``per_crossing`` (N, orders) is each crossing's contribution to the image's
+    intensity (the mode's own units), ``degree`` and ``evpa`` (rad) its
+    polarisation at the observer.  The angle map is in degrees, NaN where the
+    light is unpolarised; the degree is sqrt(Q^2 + U^2) / I (orders of different
+    angle partly cancel).
+    """
+    i, q, u, (i_sum, q_sum, u_sum) = stokes_from_crossings(per_crossing, degree, evpa, hits)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        degree_map = np.where(i_sum > 0.0, np.hypot(q_sum, u_sum) / i_sum, np.nan)
+        angle = np.where(np.hypot(q_sum, u_sum) > 0.0,
+                         np.degrees(0.5 * np.arctan2(u_sum, q_sum)), np.nan)
+    return {"stokes_i_order": i, "stokes_q_order": q, "stokes_u_order": u,
+            "stokes_i": i_sum, "stokes_q": q_sum, "stokes_u": u_sum,
+            "polarised_degree": degree_map, "polarisation_angle": angle}
+
+
+def polarised_spectrum(obs, scene, r, g, weight, hits, degree, evpa, table):
+    """Disk-integrated Q_nu, U_nu (Jy), degree and IAU angle (deg) on the spectrum's grid.
+
+    F_nu is linear in the per-crossing weight, so Q_nu is the image spectrum of
+    the weights p cos(2 EVPA) L(mu) (split into their positive and negative parts,
+    which :func:`render.light.spectra.image_spectrum` takes separately).
+    """
+    nu, omega = table["frequency_hz"], pixel_angle_rad(scene) ** 2
+    shining = hits & np.isfinite(evpa)
+    out = {}
+    for name, factor in (("stokes_q_jy", np.cos(2.0 * np.nan_to_num(evpa))),
+                         ("stokes_u_jy", np.sin(2.0 * np.nan_to_num(evpa)))):
+        signed = np.nan_to_num(weight * degree * factor)
+        out[name] = (image_spectrum(obs.law, nu, r, g, np.maximum(signed, 0.0), shining, omega)
+                     - image_spectrum(obs.law, nu, r, g, np.maximum(-signed, 0.0), shining,
+                                      omega))
+    total = table["flux_relativistic_jy"]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out["polarised_degree"] = np.hypot(out["stokes_q_jy"], out["stokes_u_jy"]) / total
+    out["polarisation_angle_deg"] = np.degrees(0.5 * np.arctan2(out["stokes_u_jy"],
+                                                                out["stokes_q_jy"]))
+    return out
 
 
 def _add_flux(scene, intensity, products, info):

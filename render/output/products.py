@@ -90,9 +90,13 @@ def write_products(result, folder="outputs", overwrite=False):
                   chunk_bytes=_block_rows(result, linear[:1].nbytes) * linear[:1].nbytes)
     if "spectrum_csv" in paths:
         table = result.tables["spectrum"]
+        polarised = ("; stokes_q_jy, stokes_u_jy: disk-integrated Q_nu, U_nu in Jy; "
+                     "polarisation_angle_deg: IAU, from north through east"
+                     if "stokes_q_jy" in table else "")
         write_table_csv(paths["spectrum_csv"], table, overwrite,
                         header="# disk-integrated F_nu in Jy; relativistic: ray-traced image; "
-                               "flat: same local emission without relativistic effects")
+                               "flat: same local emission without relativistic effects"
+                               + polarised)
         _plot(paths["spectrum_png"], overwrite, _spectrum_figure, table, result.metadata)
     if "line_csv" in paths:
         table = result.tables["line"]
@@ -292,6 +296,8 @@ def _fits_layout(result):
                        result.products["flux_density_jy"], None))
     layout.append((header("", "redshift factor g = nu_obs/nu_em (no unit)", "REDSHIFT"),
                    result.g, 0))
+    if "stokes_q" in result.products:
+        layout.extend(_polarisation_layout(result, header, unit, what))
     # A zero-strided stand-in gives astropy the data shape and type for the mandatory
     # cards (BITPIX, NAXISn, PCOUNT, GCOUNT, EXTEND) without an image-sized array.
     stand_in = np.broadcast_to(np.float64(0.0), (height, width))
@@ -316,6 +322,22 @@ def scene_table_hdu(metadata):
     hdu = fits.BinTableHDU.from_columns([column], name="SCENE")
     hdu.header["COMMENT"] = "the scene of this still (every key, defaults filled in), as YAML"
     return hdu
+
+
+def _polarisation_layout(result, header, unit, what):
+    """The Stokes I, Q, U, degree and angle HDUs (IAU angle: from north through east)."""
+    layout = []
+    for name, bunit, comment, key in (
+            ("STOKESI", unit, f"Stokes I: {what}", "stokes_i"),
+            ("STOKESQ", unit, f"Stokes Q: {what}", "stokes_q"),
+            ("STOKESU", unit, f"Stokes U: {what}", "stokes_u"),
+            ("POLDEG", "", "degree of linear polarisation (no unit)", "polarised_degree"),
+            ("POLANG", "deg", "polarisation angle, IAU", "polarisation_angle")):
+        h = header(bunit, comment, name)
+        h["POLCONV"] = ("IAU", "angle from north (up) through east (left)")
+        h["STOKESV"] = (0.0, "circular polarisation: none")
+        layout.append((h, result.products[key], None))
+    return layout
 
 
 def fits_hdus(result):

@@ -17,6 +17,7 @@ from ..light.disk import SURFACES
 from ..light.emission import EMISSION_LAWS, LIMB_DARKENING_LAWS
 from ..light.observing import COLOUR_EXPOSURES, MODES
 from ..light.pattern import PATTERNS
+from ..light.polarisation import POLARISATION_MODELS
 from ..light.thermal import ACCRETION_UNITS
 from ..units import ANGLE_UNITS
 
@@ -249,6 +250,28 @@ KEYS = {spec.path: spec for spec in [
        low=1, high=16),
     _k("pattern.pitch", "float", 20.0, "deg", "1 <= pitch <= 89",
        "Pitch angle of the logarithmic spiral arms.", low=1.0, high=89.0),
+    _k("polarisation.model", "choice", "none", "-", ", ".join(POLARISATION_MODELS),
+       "Linear polarisation of the disk light: none, electron_scattering (Chandrasekhar 1960: "
+       "degree from the emission angle, E-vector along the disk) or constant "
+       "(docs/polarisation.md).", choices=POLARISATION_MODELS),
+    _k("polarisation.degree", "float", 0.1, "-", "0 <= degree <= 1",
+       "Emitted degree of linear polarisation of the constant model.", low=0.0, high=1.0),
+    _k("polarisation.angle", "float", 0.0, "deg", "-180 <= angle <= 180",
+       "Constant model: emitted E-vector angle in the gas's frame, from the direction "
+       "parallel to the disk, counter-clockwise as the receiver sees it.",
+       low=-180.0, high=180.0),
+    _k("polarisation.ticks", "bool", False, "-", "true, false",
+       "Draw polarisation ticks (length ~ degree, along the E-vector) over the PNG."),
+    _k("visibilities.compute", "bool", False, "-", "true, false",
+       "Also write the still's complex visibilities, radial profile and ring diameter "
+       "(pixel scale from mass and distance; Jy in the monochromatic mode; "
+       "docs/polarisation.md)."),
+    _k("visibilities.padding", "int", 4, "-", "1 <= padding <= 16",
+       "Zero padding of the FFT: the transform grid is padding x the image size.",
+       low=1, high=16),
+    _k("visibilities.baselines", "path", None, "-", "null or a CSV file (relative to the "
+       "scene file)", "Baselines to sample: columns u_glambda, v_glambda or u_m, v_m "
+       "(metres, at the observing frequency)."),
     _k("measure.directions", "int", 512, "-", "16 <= directions <= 65536",
        "Rays from the shadow's centre along which `nullray measure` bisects its edge.",
        low=16, high=65536),
