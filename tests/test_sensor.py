@@ -236,7 +236,7 @@ def test_example_outreach_scenes_are_valid_and_the_preview_renders(tmp_path, cap
 
     scenes = Path(__file__).resolve().parents[1] / "scenes"
     full = load_scene(scenes / "outreach-corvid.yaml")
-    assert full["sky.backdrop"] == "stars" and full["image.supersampling"] == 3
+    assert full["sky.backdrop"] == "stars" and full["image.supersampling"] == 2
     status, out, err = run_cli(["still", scenes / "preview-corvid.yaml", "--output-dir",
                                 tmp_path], capsys)
     assert status == 0, err
