@@ -330,15 +330,12 @@ def write_fits(path, result, overwrite=False):
 
 
 def _plot(path, overwrite, figure_maker, table, metadata):
-    import matplotlib
+    # A bare Figure renders to PNG without pyplot, so no backend is chosen here.
+    from matplotlib.figure import Figure
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    fig = figure_maker(plt, table, metadata)
+    fig = figure_maker(Figure(figsize=(6.4, 4.4)), table, metadata)
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=110)
-    plt.close(fig)
     data = buffer.getvalue()
     return atomic_write(path, lambda f: f.write(data), overwrite)
 
@@ -350,8 +347,8 @@ def _title(metadata):
             f"D = {doc['black_hole']['distance']:.3g} pc")
 
 
-def _spectrum_figure(plt, table, metadata):
-    fig, ax = plt.subplots(figsize=(6.4, 4.4))
+def _spectrum_figure(fig, table, metadata):
+    ax = fig.add_subplot()
     nu = table["frequency_hz"]
     for key, label in (("flux_relativistic_jy", "ray-traced (relativistic)"),
                        ("flux_flat_jy", "flat space (no relativistic effects)")):
@@ -365,8 +362,8 @@ def _spectrum_figure(plt, table, metadata):
     return fig
 
 
-def _line_figure(plt, table, metadata):
-    fig, ax = plt.subplots(figsize=(6.4, 4.4))
+def _line_figure(fig, table, metadata):
+    ax = fig.add_subplot()
     ax.step(table["energy_kev"], table["counts"], where="mid")
     rest = metadata["observing"]["line_energy_kev"]
     ax.axvline(rest, color="grey", linestyle=":", label=f"rest energy {rest:g} keV")
