@@ -132,3 +132,41 @@ def test_glare_changes_the_picture_only(tmp_path):
     # The eye scatters light into the dark shadow and sky: the picture changes there.
     dark = plain.pixels == 0
     assert (glared.pixels[dark] > 0).any()
+
+
+def test_default_scene_frames_the_disk_and_shows_the_order_1_image():
+    # The default scene at a quarter of its size (same framing in M). Luminet 1979, Fig. 2:
+    # a thin disk seen at high inclination shows its order-1 (secondary) image below the
+    # shadow; here it must be in view and the whole disk must lie inside the frame.
+    from render.light.observing import disk_reaches_border
+
+    scene = default_scene(**{"image.width": 160, "image.height": 90})
+    result = render_still(scene)
+    shining = result.on_disk.reshape(scene["disk.orders"], -1).T
+    assert not disk_reaches_border(shining, 90, 160)
+    # At least 2 % of the disk's pixels (the old default had 29 of ~130 000: 0.02 %).
+    assert result.on_disk[1].sum() >= 0.02 * result.on_disk.any(axis=0).sum()
+    # The picture never clips at the default exposure (Reinhard et al. 2002: x/(1+x) < 1).
+    assert result.pixels.max() < 255
+
+
+def test_colour_map_in_tiles_equals_untiled(tmp_path):
+    # A fixed per-pixel rule (common practice for films): bands of rows give the same picture.
+    scene = default_scene(**{"image.width": 64, "image.height": 36,
+                             "display.colour_map": "inferno"})
+    from render.imaging.tiling import plan_still
+
+    assert plan_still(scene, 400_000).tiles > 1
+    tiled = render_still(scene, memory_budget=400_000, workdir=tmp_path)
+    try:
+        np.testing.assert_array_equal(np.asarray(tiled.pixels), render_still(scene).pixels)
+    finally:
+        tiled.release()
+
+
+def test_glare_is_never_split_into_tiles(tmp_path):
+    from render import SceneError
+
+    scene = default_scene(**{"image.width": 64, "image.height": 36, "display.glare": True})
+    with pytest.raises(SceneError, match="display.glare"):
+        render_still(scene, memory_budget=400_000, workdir=tmp_path)
