@@ -130,8 +130,8 @@ def gallery_markdown():
     lines = ["# Gallery", "",
              "Every picture here is made by one command from the example scenes in `scenes/`:",
              "", "```sh", "python docs/make_gallery.py", "```", "",
-             "(sizes reduced for the page; the display rules are described in the README, "
-             "Conventions: Exposure).", ""]
+             "(sizes reduced for the page; the display rules are in [docs/display.md](display.md) "
+             "and the README, Conventions: Exposure and display).", ""]
     for entry in ENTRIES:
         scene = f"scenes/{entry.scene}" if entry.scene else "(default scene)"
         sets = " ".join(f"--set '{o}'" for o in entry.overrides)
