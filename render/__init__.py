@@ -37,6 +37,7 @@ _PUBLIC = {
     "write_products": "output.products", "critical_curve": "measure.shadow",
     "shadow_moments": "measure.shadow", "measure_scene": "measure.shadow_measurement",
     "make_still": "api", "render_sequence": "api", "render_still": "api",
+    "plot": "output.figures", "read_still": "output.figures", "make_figures": "api",
 }
 
 __all__ = ["__version__", *_PUBLIC]

@@ -23,6 +23,8 @@ from .imaging.still import render_still as _render_still_here
 from .light.observing import prepare_observation
 from .measure.shadow_measurement import measure_paths, measure_scene, write_measurement
 from .measure.visibility_products import read_baselines, visibility_paths, write_visibilities
+from .output.figures import MAP_NAMES, figure_path, map_values, read_still, write_figure
+from .output.figures import plot  # noqa: F401  (the public Python API: plot(result, map, ax))
 from .output.files import (check_free, published_together, still_paths, sweep_dead_temporaries,
                            write_still)
 from .output.products import product_paths, write_products
@@ -32,7 +34,7 @@ from .scene.keys import keys_reference
 from .scene.loader import default_scene, load_scene, preview_film, preview_scene
 
 __all__ = ["open_scene", "keys_reference", "render_still", "make_still", "render_sequence",
-           "make_measurement"]
+           "make_measurement", "plot", "make_figures"]
 
 
 def open_scene(path=None, overrides=(), *, allow_outside_files=False):
@@ -131,6 +133,44 @@ def make_still(scene, output_dir="outputs", *, overwrite=False, progress=None, s
     finally:
         result.release()
     return result, paths
+
+
+def make_figures(source, map_names, output_dir="outputs", *, overrides=(), overwrite=False,
+                 progress=None):
+    """Figures with scales of a still's maps; return ``{map name: path}``.
+
+    ``source`` is a still's NPZ (read back, nothing traced) or a scene file (or
+    None: the default scene), rendered without writing its still.  Each map's
+    figure is ``<name>_<map>.png`` (:func:`render.output.figures.plot`).
+    Unknown map names and taken targets are refused before any tracing.
+    """
+    for name in map_names:
+        if name not in MAP_NAMES:
+            raise UsageError(f"--map {name!r} is not allowed; expected one of "
+                             f"{', '.join(MAP_NAMES)}")
+    if source is not None and str(source).endswith(".npz"):
+        if overrides:
+            raise UsageError("--set changes a scene; a still's NPZ is already rendered")
+        try:
+            result = read_still(source)
+        except (OSError, ValueError) as exc:
+            if isinstance(exc, UsageError):
+                raise
+            raise UsageError(f"{str(source)!r} cannot be read as a still's NPZ: {exc}") from None
+    else:
+        scene = open_scene(source, overrides)
+        check_free([figure_path(scene.document, name, output_dir) for name in map_names],
+                   overwrite)
+        result = render_still(scene, progress)
+    check_free([figure_path(result.metadata["scene"], name, output_dir) for name in map_names],
+               overwrite)
+    _check_writable_folder(Path(output_dir))
+    try:
+        for name in map_names:
+            map_values(result, name)   # every map exists before any file is written
+        return {name: write_figure(result, name, output_dir, overwrite) for name in map_names}
+    finally:
+        result.release()
 
 
 def make_measurement(scene, output_dir="outputs", *, tolerances=None, overwrite=False,

@@ -64,6 +64,16 @@ def _parser():
                           help="quick look: at most 12 small one-order frames, keyframes at the "
                                "same moments, into <name>-preview/")
 
+    figure = commands.add_parser(
+        "figure", help="figures of a still's maps with colour bars and scales in M and angle")
+    figure.add_argument("source", nargs="?",
+                        help="a still's NPZ, or a YAML scene file rendered first "
+                             "(default: the built-in default scene)")
+    figure.add_argument("--map", dest="maps", action="append", default=[], metavar="NAME",
+                        help="picture, intensity, g, r, delay, order or fate (repeatable; "
+                             "default: intensity)")
+    _add_common_options(figure)
+
     measure = commands.add_parser(
         "measure", help="measure the shadow against the analytic prediction (exit 1 on a miss)")
     measure.add_argument("scene", help="YAML scene file")
@@ -111,6 +121,16 @@ def _measure(args):
     for path in paths.values():
         print(f"wrote {path}")
     return 0 if measurement.passed else 1
+
+
+def _figure(args):
+    from .api import make_figures
+
+    paths = make_figures(args.source, args.maps or ["intensity"], args.output_dir,
+                         overrides=args.overrides, overwrite=args.overwrite)
+    for path in paths.values():
+        print(f"wrote {path}")
+    return 0
 
 
 def _load(args):
@@ -235,6 +255,8 @@ def _run(args, shown):
         return _measure(args)
     if args.command == "compose":
         return _compose(args)
+    if args.command == "figure":
+        return _figure(args)
     if args.command == "sequence":
         return _sequence(args)
     return _still(args, shown)

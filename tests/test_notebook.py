@@ -15,7 +15,7 @@ from render.errors import NullrayWarning
 @pytest.fixture(scope="module")
 def tiny_result():
     scene = render.default_scene(**{"image.width": 16, "image.height": 16,
-                                    "observer.placement": "distant",
+                                    "observer.placement": "distant", "observer.inclination": 60.0,
                                     "tracing.method": "auto", "disk.orders": 1})
     return scene, render.render_still(scene)
 

@@ -394,8 +394,16 @@ BAD_SCENES_WITH_FILES = [
     # A sky is tiled when the white is fixed, not with the automatic colour exposure.
     ("sky-in-a-tiled-still-with-auto-exposure", "sky:\n  backdrop: stars\nobserving:\n"
      "  mode: true_colour\nemission:\n  law: novikov_thorne\ntracing:\n  memory_budget: 0.01\n",
-     {}, ["512 x 512", "tracing.memory_budget = 0.01 GB", "colour_exposure = 'auto'",
+     {}, ["640 x 360", "tracing.memory_budget = 0.01 GB", "colour_exposure = 'auto'",
           "whole image"]),
+    ("colour-rule-unknown", "display:\n  colour_rule: clip\n", {},
+     ["display.colour_rule", "'clip'", "soft_shoulder"]),
+    ("scaling-unknown", "display:\n  scaling: sqrt\n", {}, ["display.scaling", "'sqrt'", "asinh"]),
+    ("decades-too-small", "display:\n  decades: 0.1\n", {}, ["display.decades", "0.1"]),
+    ("colour-map-unknown", "display:\n  colour_map: jet\n", {},
+     ["display.colour_map", "'jet'", "viridis"]),
+    ("glare-not-a-bool", "display:\n  glare: lots\n", {}, ["display.glare", "'lots'"]),
+    ("viewing-angle-zero", "display:\n  viewing_angle: 0\n", {}, ["display.viewing_angle", "0"]),
     ("profile-law-without-table", "emission:\n  law: profile\n", {},
      ["emission.law", "'profile'", "emission.profile"]),
     ("profile-table-missing", "emission:\n  law: profile\n  profile: absent.csv\n", {},

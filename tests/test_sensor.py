@@ -208,7 +208,7 @@ def test_preview_is_small_low_order_and_writes_only_a_png(tmp_path, capsys):
     assert status == 0, err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["default-preview.png"]
     with Image.open(tmp_path / "default-preview.png") as image:
-        assert image.size == (160, 160)
+        assert image.size == (160, 90)
         scene = json.loads(image.text["nullray-scene"])
     assert scene["disk"]["orders"] == 1 and scene["tracing"]["tolerance"] == 1e-6
     # The same through the scene key; the full render's name is never used.
@@ -236,7 +236,7 @@ def test_example_outreach_scenes_are_valid_and_the_preview_renders(tmp_path, cap
 
     scenes = Path(__file__).resolve().parents[1] / "scenes"
     full = load_scene(scenes / "outreach-corvid.yaml")
-    assert full["sky.backdrop"] == "stars" and full["image.supersampling"] == 3
+    assert full["sky.backdrop"] == "stars" and full["image.supersampling"] == 2
     status, out, err = run_cli(["still", scenes / "preview-corvid.yaml", "--output-dir",
                                 tmp_path], capsys)
     assert status == 0, err
@@ -286,7 +286,7 @@ def test_preview_keeps_a_looser_tolerance_and_the_api_honours_the_flag():
     assert tight["tracing.tolerance"] == 1e-6
     # render_still applies image.preview itself (as the command line does).
     still = render_still(default_scene(**{"image.preview": True}))
-    assert still.intensity.shape == (160, 160) and still.r.shape[0] == 1
+    assert still.intensity.shape == (90, 160) and still.r.shape[0] == 1
 
 
 def test_supersampled_still_with_an_automatic_exposure_is_refused_in_tiles(no_tracing):

@@ -84,7 +84,7 @@ def test_memory_budget_key_is_in_gigabytes():
 @pytest.mark.parametrize("changes,budget,fragments", [
     # Whole-image shading larger than the budget.
     ({"observing.mode": "spectrum", "emission.law": "novikov_thorne"}, 1e6,
-     ["image.width x image.height = 512 x 512", "tracing.memory_budget = 0.001 GB",
+     ["image.width x image.height = 640 x 360", "tracing.memory_budget = 0.001 GB",
       "'spectrum'"]),
     ({"observing.mode": "true_colour", "emission.law": "novikov_thorne"}, 1e6,
      ["observing.colour_exposure = 'auto'", "observing.colour_reference_y"]),

@@ -16,7 +16,7 @@ import numpy as np
 
 from ..geodesics.tracing import trace
 from ..imaging.still import shining_crossings
-from ..light.color import srgb_encode, to_uint8, tone_map
+from ..light.display import scene_scalar_pixels
 from ..light.pattern import emission_time, pattern_factor
 from ..imaging.sensor import finish_still, needs_sensor
 from ..light.observing import prepare_observation, shade
@@ -181,7 +181,7 @@ def _frame_pixels(scene, job, observation, shaded, raw, bundle):
     if observation.mode == "true_colour":
         return shaded.pixels
     # One white for the whole sequence, so brightness changes are real.
-    return to_uint8(srgb_encode(tone_map(shaded.intensity, job.white, scene["output.exposure"])))
+    return scene_scalar_pixels(scene, shaded.intensity, job.white)
 
 
 def render_frame(job, numba_threads=None):

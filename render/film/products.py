@@ -18,6 +18,8 @@ from ..output.files import atomic_write, write_png
 from ..output.video import (FRAME_PATTERN, VIDEO_EXTRA_MISSING, contact_sheet,
                             video_writer_available, write_gif, write_light_curve_png,
                             write_video)
+from ..scene.keys import KEYS
+from ..units import angular_gravitational_radius_uas, gravitational_time_s
 from .flash import flash_check, relative_luminance
 
 __all__ = ["write_sequence_products"]
@@ -65,7 +67,7 @@ def write_sequence_products(folder, plan, manifest):
     unit = "retarded time u" if distant else "camera proper time"
     paths["lightcurve_csv"] = _write_light_curve_csv(folder / "lightcurve.csv", plan.jobs, fluxes)
     paths["lightcurve_png"] = write_light_curve_png(folder / "lightcurve.png", clocks, fluxes,
-                                                    unit)
+                                                    unit, **_light_curve_scales(plan))
     flash = flash_check([relative_luminance(f) for f in frames], plan.fps)
     if not flash["passes"]:
         warnings.warn(flash_warning(flash), NullrayWarning, stacklevel=2)
@@ -81,6 +83,34 @@ def flash_warning(flash):
             f"{flash['worst_start_s']:.2f} s (frame {flash['worst_start_frame']}): more than "
             "3 per second fails WCAG 2.2 SC 2.3.1 (photosensitive epilepsy); do not screen "
             "it publicly as is")
+
+
+def swept_key(plan):
+    """``(key and unit, values per frame)`` of the first keyframed key whose value changes, or None."""
+    keys = []
+    for keyframe in plan.scene["animation.keyframes"]:
+        keys += [k for k in keyframe if k not in ("frame", "interpolation") and k not in keys]
+    for key in keys:
+        values = [float(job.scene[key]) for job in plan.jobs]
+        if len(set(values)) > 1:
+            unit = KEYS[key].unit if key in KEYS else "-"
+            return (key if unit == "-" else f"{key} [{unit}]"), values
+    return None
+
+
+def _light_curve_scales(plan):
+    """Seconds per M, the flux's physical unit (a thermal law's cgs) and the swept key.
+
+    A frame's flux is sum(I) (pixel side in M)^2; times theta_g^2 (rad^2, theta_g =
+    G M / (c^2 D)) it is the flux at the observer, erg s^-1 cm^-2 when I is in cgs.
+    """
+    scene = plan.scene
+    mass, distance = scene["black_hole.mass"], scene["black_hole.distance"]
+    scales = {"seconds_per_m": gravitational_time_s(mass), "swept": swept_key(plan)}
+    if scene["emission.law"] == "novikov_thorne" and scene["observing.mode"] == "bolometric":
+        theta_g = angular_gravitational_radius_uas(mass, distance) * np.pi / (180 * 3600 * 1e6)
+        scales.update(flux_scale=theta_g ** 2, flux_unit="erg s^-1 cm^-2")
+    return scales
 
 
 def _write_light_curve_csv(path, jobs, fluxes):

@@ -53,7 +53,8 @@ from .tiling import HALO_ROWS
 from ..errors import SceneError
 from ..geodesics.tracing import escape_directions
 from ..light.cie import xyz_to_linear_srgb_matrix
-from ..light.color import expose_true_colour, srgb_encode, to_uint16, to_uint8, tone_map
+from ..light.color import xyz_to_linear_srgb
+from ..light.display import scene_colour_pixels, scene_scalar_pixels
 from ..light.observing import Shaded
 from ..guards.reading import InputFileError, check_regular_file
 from .sky import (PanoramaMemoryError, SkyImageError, camera_vectors, load_panorama, sample_panorama, sky_vectors,
@@ -310,9 +311,8 @@ def _display(observation, scene, composite, white):
     """8-bit sRGB pixels (and 16-bit for true colour) of linear composite values."""
 
     if observation.mode == "true_colour":
-        encoded = srgb_encode(expose_true_colour(composite, white, scene["output.exposure"]))
-        return to_uint8(encoded), to_uint16(encoded)
-    return to_uint8(srgb_encode(tone_map(composite[:, 0], white, scene["output.exposure"]))), None
+        return scene_colour_pixels(scene, xyz_to_linear_srgb(composite), white)
+    return scene_scalar_pixels(scene, composite[:, 0], white), None
 
 
 def _brightness(observation, scene, composite, white):

@@ -161,7 +161,8 @@ def _still_metadata(scene, raw, shaded, negative, maps):
             "fate_codes": {str(k): v for k, v in FATE_NAMES.items()},
             "g": "nu_obs / nu_em; NaN inside the ISCO",
             "delay": "(t_obs - t_em) - (r*_obs - r*_em), dr*/dr = (r^2+a^2)/Delta",
-            "exposure": "display = x/(1+x), x = exposure * I / I_em(r_in); then sRGB",
+            "exposure": "x = exposure * I / I_white; picture by the display.* rules "
+                        "(README, Exposure and display); data maps untouched",
         },
         "isco": isco_radius(spin), "horizon": r_plus, "inner_radius": scene.inner_radius,
         "outer_radius": scene["disk.outer_radius"], "fate_counts": counts,

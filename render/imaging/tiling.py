@@ -61,6 +61,8 @@ def _scene_error(message):
 def is_tileable(values):
     """Whether a scene's shading is per pixel (so that its bands can be shaded alone)."""
     mode = values["observing.mode"]
+    if values["display.glare"]:   # the eye's glare spreads light over the whole picture
+        return False
     if mode in ("bolometric", "monochromatic"):
         return True
     return mode == "true_colour" and values["observing.colour_exposure"] == "fixed"
@@ -118,6 +120,10 @@ def check_memory(values, budget_bytes=None):
     limit = f"tracing.memory_budget = {budget / 1e9:g} GB"
     if whole <= budget:
         return TilePlan(width, height, height, budget, whole, whole)
+    if values["display.glare"]:
+        raise _scene_error(f"{size} needs about {whole / 1e9:.3g} GB untiled, more than {limit}, "
+                           "and display.glare = true spreads light over the whole picture at "
+                           "once; use a smaller image, a larger budget or no glare")
     if not is_tileable(values):
         raise _scene_error(
             f"{size} needs about {whole / 1e9:.3g} GB untiled, more than {limit}, and "
@@ -129,7 +135,8 @@ def check_memory(values, budget_bytes=None):
                                  "observing.colour_reference_y in its metadata)"
                                  if values["observing.mode"]
                                  == "true_colour" else ""))
-    channels = 3 if values["observing.mode"] == "true_colour" else 1
+    channels = (3 if values["observing.mode"] == "true_colour"
+                or values["display.colour_map"] != "grey" else 1)
     picture = 2.0 * width * height * channels  # the 8-bit picture and PIL's copy of it
     row = float(width) * per_pixel
     # A band with a sky or supersampling is traced with up to 2 HALO_ROWS + 1 more

@@ -7,7 +7,9 @@ exposure always give the same brightness):
 
 where ``I_white`` is the emission law's rest-frame intensity at the disk's inner
 edge.  The display value is then encoded with the sRGB transfer function
-(IEC 61966-2-1) and quantised to 8 bits.
+(IEC 61966-2-1) and quantised to 8 bits.  This is the default scalar rule; the
+choice of rules a scene makes (scalings, colour maps, the true-colour rules) is
+:mod:`render.light.display`, built from the pieces here.
 """
 
 import math

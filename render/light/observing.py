@@ -33,8 +33,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .color import (automatic_reference_luminance, desaturate_into_gamut, expose_linear_srgb,
-                    srgb_encode, to_uint8, to_uint16, tone_map, xyz_to_linear_srgb)
+from .color import automatic_reference_luminance, desaturate_into_gamut, xyz_to_linear_srgb
+from .display import scene_colour_pixels, scene_scalar_pixels
 from .emission import (EmissionTableError, NovikovThorne, PowerLaw, RadialProfile,
                        emission_cosine, limb_darkening, observed_bolometric)
 from ..errors import NullrayWarning, SceneError
@@ -296,7 +296,6 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
     if obs.limb != "none" or obs.mode != "bolometric" or law.name != "power_law":
         products["emission_cosine"] = np.where(hits, mu, np.nan)
     tables = {}
-    exposure = scene["output.exposure"]
     white = exposure_white(obs, r_in, r_out)
     intensity = bolometric
     if obs.mode == "monochromatic":
@@ -312,7 +311,7 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
         products.update(colour_products)
         info.update(colour_info)
     else:
-        pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
+        pixels = scene_scalar_pixels(scene, intensity, white)
     if obs.mode in ("spectrum", "line"):
         # These modes always see the whole image (they are never tiled): a disk
         # that reaches the border is cropped, and the totals miss what lies outside.
@@ -334,7 +333,7 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
             scene["observing.line_high"], g_spread=spread)
         tables["line"] = line
         intensity = image
-        pixels = to_uint8(srgb_encode(tone_map(intensity, white, exposure)))
+        pixels = scene_scalar_pixels(scene, intensity, white)
         products["line_intensity"] = image
         info.update(line_info)
     if obs.polarisation.model != "none" and alpha is not None:
@@ -428,18 +427,18 @@ def _true_colour(obs, scene, r, g, weight, hits):
     if reference is None:   # the automatic exposure: the image's own white
         reference = automatic_reference_luminance(xyz[:, 1])
     rgb = desaturate_into_gamut(xyz_to_linear_srgb(xyz))
-    encoded = srgb_encode(expose_linear_srgb(rgb, reference, scene["output.exposure"]))
+    pixels, pixels16 = scene_colour_pixels(scene, rgb, reference)
     products = {
         "xyz": xyz.astype(np.float32),
         "rgb_linear": rgb.astype(np.float32),
-        "pixels16": to_uint16(encoded),
+        "pixels16": pixels16,
     }
     info = {"colour_reference_y": reference, "colour_exposure": scene["observing.colour_exposure"],
             "white_point": "D65 (x, y) = (0.3127, 0.3290), no chromatic adaptation",
-            "gamut": "negative linear sRGB desaturated toward grey of equal Y; channels > 1 "
-                     "scaled down per pixel keeping hue",
+            "gamut": "negative linear sRGB desaturated toward grey of equal Y",
+            "colour_rule": scene["display.colour_rule"],
             "units": "xyz and rgb_linear: CIE-weighted radiance, erg s^-1 cm^-2 sr^-1"}
-    return to_uint8(encoded), products, info
+    return pixels, products, info
 
 
 def disk_spectrum(obs, scene, r, g, weight, hits):

@@ -685,8 +685,7 @@ def format_table(measurement):
 
 def overlay_png_bytes(measurement, scene):
     """The image with the analytic curve and the measured boundary drawn over it (PNG)."""
-    # A bare Figure on its own Agg canvas: the user's matplotlib backend is left as it is.
-    from matplotlib.figure import Figure
+    from matplotlib.figure import Figure   # a bare Figure: no backend is chosen here
 
     result = measurement.result
     width, height = scene["image.width"], scene["image.height"]

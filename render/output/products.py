@@ -393,11 +393,10 @@ def write_fits(path, result, overwrite=False):
 
 
 def _plot(path, overwrite, figure_maker, table, metadata):
-    # A bare Figure draws on its own Agg canvas: no pyplot, so the user's backend is untouched.
+    # A bare Figure renders to PNG without pyplot, so no backend is chosen here.
     from matplotlib.figure import Figure
 
-    fig = Figure(figsize=(6.4, 4.4))
-    figure_maker(fig, table, metadata)
+    fig = figure_maker(Figure(figsize=(6.4, 4.4)), table, metadata)
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=110)
     data = buffer.getvalue()

@@ -102,20 +102,37 @@ def contact_sheet(frames, columns=8, labels=None, max_tiles=64):
     return np.asarray(sheet)
 
 
-def write_light_curve_png(path, clocks, fluxes, unit):
-    """Plot flux against the observer's time (a matplotlib Figure on its Agg canvas) as PNG, atomically.
+def write_light_curve_png(path, clocks, fluxes, unit, *, seconds_per_m=None, flux_unit=None,
+                          flux_scale=1.0, swept=None):
+    """Plot flux against the observer's time (and a swept key) and write it as PNG, atomically.
 
-    ``unit`` names the observer's clock on the time axis (retarded time or proper time).
+    ``unit`` names the observer's clock on the time axis (retarded time or proper
+    time).  ``seconds_per_m`` (G M / c^3) adds the time in seconds on the top axis;
+    ``flux_scale`` converts the fluxes to ``flux_unit`` (default: the emission
+    law's units times M^2); ``swept = (key, values)`` adds a panel of the flux
+    against that keyframed key's value in each frame.  Drawn on a bare
+    matplotlib Figure: no backend is chosen.
     """
-    # A bare Figure, not pyplot: the user's matplotlib backend is left as it is.
     from matplotlib.figure import Figure
 
-    figure = Figure(figsize=(6, 3.2), dpi=100)
-    axes = figure.add_subplot()
+    fluxes = np.asarray(fluxes, dtype=float) * flux_scale
+    figure = Figure(figsize=(6, 3.2 if swept is None else 6.0), dpi=100)
+    axes = figure.add_subplot(2 if swept else 1, 1, 1)
     axes.plot(clocks, fluxes, marker=".", lw=1)
     axes.set_xlabel(f"observer time ({unit}) [M]")
-    axes.set_ylabel("total flux [law units x M^2]")
+    axes.set_ylabel(f"total flux [{flux_unit or 'law units x M^2'}]")
     axes.grid(alpha=0.3)
+    if seconds_per_m:
+        top = axes.secondary_xaxis("top", functions=(lambda m: m * seconds_per_m,
+                                                     lambda s: s / seconds_per_m))
+        top.set_xlabel(f"[s]  (1 M = {seconds_per_m:.3g} s)")
+    if swept is not None:
+        key, values = swept
+        against = figure.add_subplot(2, 1, 2)
+        against.plot(values, fluxes, marker=".", lw=1)
+        against.set_xlabel(key)
+        against.set_ylabel(f"total flux [{flux_unit or 'law units x M^2'}]")
+        against.grid(alpha=0.3)
     figure.tight_layout()
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png")

@@ -15,6 +15,7 @@ from ..imaging.sensor import FILTERS
 from ..imaging.sky import BACKDROPS
 from ..light.disk import SURFACES
 from ..light.emission import EMISSION_LAWS, LIMB_DARKENING_LAWS
+from ..light.display import COLOUR_MAPS, COLOUR_RULES, SCALINGS
 from ..light.observing import COLOUR_EXPOSURES, MODES
 from ..light.pattern import PATTERNS
 from ..light.polarisation import POLARISATION_MODELS
@@ -72,20 +73,20 @@ KEYS = {spec.path: spec for spec in [
     _k("observer.distance", "float", 1000.0, "M", "outside the horizon (zamo) or the ergoregion "
        "(static), at most 1e9", "Boyer–Lindquist radius of the camera (camera only).",
        low=0.0, high=1e9, low_open=True),
-    _k("observer.inclination", "float", 60.0, "deg", "0 <= inclination <= 180",
+    _k("observer.inclination", "float", 76.0, "deg", "0 <= inclination <= 180",
        "Polar angle of the observer from the spin axis.", low=0.0, high=180.0),
     _k("observer.azimuth", "float", 0.0, "deg", "-360 <= azimuth <= 360",
        "Boyer–Lindquist azimuth of the observer.", low=-360.0, high=360.0),
     _k("observer.frame", "choice", "zamo", "-", ", ".join(FRAMES),
        "Local frame of the camera: zamo (zero angular momentum) or static.", choices=FRAMES),
-    _k("observer.field_of_view", "float", 40.0, "M", "0 < field_of_view <= 10000",
+    _k("observer.field_of_view", "float", 46.0, "M", "0 < field_of_view <= 10000",
        "Full width of the image in M at the hole's distance.", low=0.0, high=1e4, low_open=True),
     _k("observer.roll", "float", 0.0, "deg", "-360 <= roll <= 360",
        "Counter-clockwise rotation of the image about the line of sight.",
        low=-360.0, high=360.0),
-    _k("image.width", "int", 512, "pixels", f"1 <= width <= {MAX_PIXELS_SIDE}",
+    _k("image.width", "int", 640, "pixels", f"1 <= width <= {MAX_PIXELS_SIDE}",
        "Pixels across.", low=1, high=MAX_PIXELS_SIDE),
-    _k("image.height", "int", 512, "pixels", f"1 <= height <= {MAX_PIXELS_SIDE}",
+    _k("image.height", "int", 360, "pixels", f"1 <= height <= {MAX_PIXELS_SIDE}",
        "Pixels down.", low=1, high=MAX_PIXELS_SIDE),
     _k("image.supersampling", "int", 1, "-", "1 <= supersampling <= 8",
        "Anti-aliasing: n x n sub-pixel rays per refined pixel (1: one ray per pixel centre).",
@@ -102,7 +103,7 @@ KEYS = {spec.path: spec for spec in [
        "Quick look: 160 pixels wide, one order, tolerance 1e-6, no NPZ, name + '-preview'."),
     _k("disk.inner_radius", "radius_or_isco", "isco", "M", "'isco' or a radius >= the ISCO",
        "Inner edge of the disk; emission inside the ISCO (plunging gas) is not modelled yet."),
-    _k("disk.outer_radius", "float", 20.0, "M", "inner_radius < outer_radius <= 1e6",
+    _k("disk.outer_radius", "float", 18.0, "M", "inner_radius < outer_radius <= 1e6",
        "Outer edge of the disk.", low=0.0, high=1e6, low_open=True),
     _k("disk.surface", "choice", "opaque", "-", "opaque, transparent",
        "opaque: a ray ends at its first disk crossing; transparent: orders 0..orders-1 add up.",
@@ -210,6 +211,25 @@ KEYS = {spec.path: spec for spec in [
     _k("output.exposure", "float", 4.0, "-", "0 < exposure <= 1e12",
        "Brightness multiplier of the fixed exposure rule (see README).",
        low=0.0, high=1e12, low_open=True),
+    _k("display.colour_rule", "choice", "soft_shoulder", "-", ", ".join(COLOUR_RULES),
+       "true_colour picture: soft_shoulder rolls highlights off toward white (nothing clips); "
+       "scale_down scales a too-bright pixel down to its brightest colour (README, Exposure).",
+       choices=COLOUR_RULES),
+    _k("display.scaling", "choice", "reinhard", "-", ", ".join(SCALINGS),
+       "Scalar pictures: x/(1+x) (reinhard), min(x, 1), log over display.decades, or asinh "
+       "(x = exposure * I / I_white).", choices=SCALINGS),
+    _k("display.decades", "float", 4.0, "dex", "0.5 <= decades <= 12",
+       "Range of the log and asinh scalings (asinh is linear below 10^-decades).",
+       low=0.5, high=12.0),
+    _k("display.colour_map", "choice", "grey", "-", ", ".join(COLOUR_MAPS),
+       "Colour map of scalar pictures (perceptually uniform; grey keeps one channel).",
+       choices=COLOUR_MAPS),
+    _k("display.glare", "bool", False, "-", "true, false",
+       "Add the glare of a viewer's eye (CIE 135/1 disability-glare PSF) to the picture only; "
+       "the data maps are unchanged."),
+    _k("display.viewing_angle", "float", 40.0, "deg", "1 <= viewing_angle <= 120",
+       "Angle the picture's width subtends at the viewer's eye (sets the glare's size).",
+       low=1.0, high=120.0),
     _k("animation.frames", "int_or_none", None, "-", "null or 1 <= frames <= 100000",
        "Frames of a sequence (`nullray sequence`); null: animation.duration x animation.fps.",
        low=1, high=100_000),
