@@ -296,6 +296,32 @@ def _emitted_kernel(r, lam, eta, a, sign_r, sign_theta, chi, kappa1, kappa2):
                 kappa1[i, j], kappa2[i, j] = out[0], out[1]
 
 
+@njit(cache=True, parallel=True)
+def _traced_kappa_kernel(r, lam, eta, a, inward, mu_start, dmu_start, chi, kappa1, kappa2):
+    """:func:`_emitted_kernel` with the signs of :func:`crossing_kappa_signs` made per ray."""
+    n_rays, n_orders = r.shape
+    block = 512
+    for b in prange((n_rays + block - 1) // block):
+        k, f, out = np.empty(4), np.empty(4), np.empty(2)
+        frame = np.empty((4, 4))
+        n, par, perp = np.empty(3), np.empty(3), np.empty(3)
+        for i in range(b * block, min((b + 1) * block, n_rays)):
+            side = 1.0
+            if mu_start[i] != 0.0:
+                side = 1.0 if mu_start[i] > 0.0 else -1.0
+            elif dmu_start[i] != 0.0:
+                side = 1.0 if dmu_start[i] > 0.0 else -1.0
+            for j in range(n_orders):
+                if not (r[i, j] == r[i, j]) or not (chi[i, j] == chi[i, j]):
+                    kappa1[i, j], kappa2[i, j] = np.nan, np.nan
+                    continue
+                sign_r = 1.0 if inward[i, j] else -1.0
+                sign_theta = -side if j % 2 == 0 else side
+                _emitted_one(r[i, j], lam[i], eta[i], a, sign_r, sign_theta, chi[i, j], k, frame,
+                             out, n, par, perp, f)
+                kappa1[i, j], kappa2[i, j] = out[0], out[1]
+
+
 def emitted_kappa(r, lam, eta, spin, sign_r, sign_theta, chi):
     """Walker–Penrose constant (kappa_1, kappa_2) of each crossing's emitted unit E-vector.
 
@@ -436,12 +462,31 @@ def stokes_from_crossings(intensity, degree, evpa, hits):
     >>> q.tolist(), [float(t[0]) for t in total]
     ([[1.0]], [2.0, 1.0, 0.0])
     """
-    with np.errstate(invalid="ignore"):
-        i = np.where(hits, np.nan_to_num(intensity, nan=0.0), 0.0)
-        polarised = np.where(hits & np.isfinite(evpa), np.nan_to_num(degree * i), 0.0)
-        q = polarised * np.cos(2.0 * np.nan_to_num(evpa))
-        u = polarised * np.sin(2.0 * np.nan_to_num(evpa))
-    return i, q, u, (i.sum(axis=1), q.sum(axis=1), u.sum(axis=1))
+    shape = np.shape(hits)
+    arrays = [np.ascontiguousarray(np.broadcast_to(a, shape), dtype=float)
+              for a in (intensity, degree, evpa)]
+    i, q, u = np.empty(shape), np.empty(shape), np.empty(shape)
+    totals = np.empty((3, shape[0]))
+    _stokes_kernel(*arrays, np.ascontiguousarray(hits, dtype=np.bool_), i, q, u, totals)
+    return i, q, u, (totals[0], totals[1], totals[2])
+
+
+@njit(cache=True, parallel=True)
+def _stokes_kernel(intensity, degree, evpa, hits, i_out, q_out, u_out, totals):
+    for n in prange(intensity.shape[0]):
+        i_sum = q_sum = u_sum = 0.0
+        for j in range(intensity.shape[1]):
+            i = intensity[n, j] if hits[n, j] and intensity[n, j] == intensity[n, j] else 0.0
+            q = u = 0.0
+            if i != 0.0 and evpa[n, j] == evpa[n, j] and degree[n, j] == degree[n, j]:
+                polarised = degree[n, j] * i
+                q = polarised * math.cos(2.0 * evpa[n, j])
+                u = polarised * math.sin(2.0 * evpa[n, j])
+            i_out[n, j], q_out[n, j], u_out[n, j] = i, q, u
+            i_sum += i
+            q_sum += q
+            u_sum += u
+        totals[0, n], totals[1, n], totals[2, n] = i_sum, q_sum, u_sum
 
 
 def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu, hits=None):
@@ -468,24 +513,65 @@ def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu, hits
         NaN angle where the E-vector is undefined (emission along the normal).
     """
     degree, chi = polarisation.emitted(mu)
-    sign_r, sign_theta = crossing_kappa_signs(raw["inward"], bundle.states[:, 2],
-                                              bundle.states[:, 3])
     r = raw["r"] if hits is None else np.where(hits, raw["r"], np.nan)
-    kappa1, kappa2 = emitted_kappa(r, bundle.lam, bundle.eta, view.spin, sign_r, sign_theta, chi)
+    shape = np.shape(r)
+    kappa1, kappa2 = np.empty(shape), np.empty(shape)
+    # The crossings' photon directions (crossing_kappa_signs) worked out inside the kernel.
+    _traced_kappa_kernel(np.ascontiguousarray(r, dtype=float),
+                         np.ascontiguousarray(bundle.lam, dtype=float),
+                         np.ascontiguousarray(bundle.eta, dtype=float), float(view.spin),
+                         np.ascontiguousarray(raw["inward"], dtype=np.bool_),
+                         np.ascontiguousarray(bundle.states[:, 2], dtype=float),
+                         np.ascontiguousarray(bundle.states[:, 3], dtype=float),
+                         np.ascontiguousarray(np.broadcast_to(chi, shape), dtype=float),
+                         kappa1, kappa2)
     alpha = np.asarray(alpha, dtype=float).reshape(-1, 1)
     beta = np.asarray(beta, dtype=float).reshape(-1, 1)
-    if view.placement == "distant":
-        e_a, e_b = distant_screen_vector(kappa1, kappa2, alpha, beta, view.spin,
-                                         view.inclination_deg)
-    else:
-        e_a, e_b = _camera_screen(view, kappa1, kappa2, alpha, beta)
-    # The screen axes (alpha, beta) are the pixel axes turned by the roll (image_plane_grid).
     roll = math.radians(view.roll_deg)
+    degree = np.ascontiguousarray(np.broadcast_to(degree, kappa1.shape), dtype=float)
+    if view.placement == "distant":
+        # Connors, Piran & Stark (1980), eqs. 4-6 (distant_screen_vector), the roll and the
+        # IAU angle (evpa_from_screen) in one pass over the crossings.
+        nu = -(alpha.ravel() + view.spin * math.sin(math.radians(view.inclination_deg)))
+        degree_out, evpa = np.empty(kappa1.shape), np.empty(kappa1.shape)
+        _distant_evpa_kernel(kappa1, kappa2, np.ascontiguousarray(nu),
+                             np.ascontiguousarray(beta.ravel()), math.cos(roll),
+                             math.sin(roll), degree, degree_out, evpa)
+        return degree_out, evpa
+    e_a, e_b = _camera_screen(view, kappa1, kappa2, alpha, beta)
+    # The screen axes (alpha, beta) are the pixel axes turned by the roll (image_plane_grid).
     e_x = math.cos(roll) * e_a + math.sin(roll) * e_b
     e_y = -math.sin(roll) * e_a + math.cos(roll) * e_b
     undefined = ~((kappa1 != 0.0) | (kappa2 != 0.0))   # NaN (skipped) counts as undefined
     evpa = np.where(undefined, np.nan, evpa_from_screen(e_x, e_y))
     return np.where(undefined, 0.0, degree), evpa
+
+
+@njit(cache=True, parallel=True)
+def _distant_evpa_kernel(kappa1, kappa2, nu, beta, cos_roll, sin_roll, degree, degree_out,
+                         evpa):
+    """Per crossing: the distant screen's E-vector, turned by the roll, as an IAU angle."""
+    half_pi = 0.5 * math.pi
+    for n in prange(kappa1.shape[0]):
+        norm = beta[n] * beta[n] + nu[n] * nu[n]
+        for j in range(kappa1.shape[1]):
+            k1, k2 = kappa1[n, j], kappa2[n, j]
+            if not (k1 != 0.0 or k2 != 0.0):
+                degree_out[n, j], evpa[n, j] = 0.0, np.nan   # along the normal: no E-vector
+                continue
+            if not (k1 == k1 and k2 == k2):
+                degree_out[n, j], evpa[n, j] = degree[n, j], np.nan   # a skipped crossing
+                continue
+            e_a = (beta[n] * k2 - nu[n] * k1) / norm
+            e_b = (beta[n] * k1 + nu[n] * k2) / norm
+            e_x = cos_roll * e_a + sin_roll * e_b
+            e_y = -sin_roll * e_a + cos_roll * e_b
+            angle = math.atan2(-e_x, e_y)
+            if angle <= -half_pi:
+                angle += math.pi
+            elif angle > half_pi:
+                angle -= math.pi
+            degree_out[n, j], evpa[n, j] = degree[n, j], angle
 
 
 def _camera_screen(view, kappa1, kappa2, alpha, beta):
