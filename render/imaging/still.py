@@ -6,9 +6,9 @@ import time
 import numpy as np
 
 from ..about import __version__
-from ..light.disk import on_disk, redshift_factor
+from ..light.disk import redshift_factor, shining_mask
 from ..light.observing import PER_ORDER_PRODUCTS, prepare_observation, shade
-from ..geodesics.integrator import FATE_DISK, FATE_NAMES
+from ..geodesics.integrator import FATE_NAMES
 from ..geodesics.tracing import energy_signs, trace
 from ..spacetime.kerr import horizon_radii, isco_radius
 from .result import StillResult
@@ -206,13 +206,8 @@ def shining_crossings(scene, raw, bundle):
     A crossing shines if it lies on the disk; for an opaque disk only the one that
     ended the ray does (earlier ones missed the disk).
     """
-    orders = scene["disk.orders"]
     g = redshift_factor(raw["r"], bundle.lam[:, None], scene.spin, bundle.energy_ratio[:, None])
-    hits = on_disk(raw["r"], scene.inner_radius, scene["disk.outer_radius"])
-    if scene["disk.surface"] == "opaque":
-        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
-        keep = np.zeros_like(hits)
-        rows = np.nonzero((raw["fate"] == FATE_DISK) & (raw["n_crossings"] <= orders))[0]
-        keep[rows, last[rows]] = True
-        hits &= keep
+    hits = shining_mask(raw["r"], raw["fate"], raw["n_crossings"], scene.inner_radius,
+                        scene["disk.outer_radius"], scene["disk.orders"],
+                        scene["disk.surface"] == "opaque")
     return g, hits
