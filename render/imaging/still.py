@@ -2,12 +2,15 @@
 
 import dataclasses
 import time
+import warnings
 
 import numpy as np
 
 from ..about import __version__
 from ..light.disk import redshift_factor, shining_mask
-from ..light.observing import PER_ORDER_PRODUCTS, prepare_observation, shade
+from ..errors import NullrayWarning
+from ..light.observing import (PER_ORDER_PRODUCTS, disk_integrated_tables, prepare_observation,
+                               samples_own_grid, shade)
 from ..geodesics.integrator import FATE_NAMES
 from ..geodesics.tracing import energy_signs, trace
 from ..spacetime.kerr import horizon_radii, isco_radius
@@ -51,11 +54,37 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps
     if needs_sensor(scene):
         prepare_sky(scene)  # a bad sky image fails before any tracing too
     if plan.tiles == 1:
-        return _render_band(scene, observation, None, progress, maps)
+        result = _render_band(scene, observation, None, progress, maps)
+        return _with_disk_integrals(scene, observation, result)
     return render_in_tiles(
         scene, plan, lambda rows, band_progress: _render_band(scene, observation, rows,
                                                               band_progress, maps),
         workdir=workdir, progress=progress)
+
+
+def _with_disk_integrals(scene, observation, result):
+    """Add the spectrum or line of the whole disk, sampled on its own grid (distant observer).
+
+    These modes are never tiled (:func:`render.imaging.tiling.is_tileable`); their
+    warnings go to the metadata and, as :class:`render.errors.NullrayWarning`, to
+    Python callers.
+    """
+    if observation.mode not in ("spectrum", "line"):
+        return result
+    if not samples_own_grid(scene):
+        for message in result.metadata["observing"].get("warnings", ()):
+            warnings.warn(message, NullrayWarning, stacklevel=3)
+        return result
+    started = time.perf_counter()
+    tables, info = disk_integrated_tables(observation, scene)
+    result.tables.update(tables)
+    observed = result.metadata["observing"]
+    observed.setdefault("warnings", []).extend(info.pop("warnings"))
+    observed.update(info)
+    observed["disk_grid"]["seconds"] = time.perf_counter() - started
+    for message in observed["warnings"]:
+        warnings.warn(message, NullrayWarning, stacklevel=3)
+    return result
 
 
 def _render_band(scene, observation, rows, progress, maps=True):

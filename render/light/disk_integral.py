@@ -168,8 +168,10 @@ def _lattice_samples(geometry, rho_min, rho_max, n):
                            below=below.reshape(flat), above=above.reshape(flat),
                            hits=(weight > 0).reshape(flat))
     edge_cells = np.nonzero(mixed)
-    g_range = np.nanmax(np.where(corners, _corner_stack(g_grid), np.nan), axis=0) - np.nanmin(
-        np.where(corners, _corner_stack(g_grid), np.nan), axis=0) if mixed.any() else None
+    corner_g = _corner_stack(g_grid)
+    g_range = (np.max(np.where(corners, corner_g, -np.inf), axis=0)
+               - np.min(np.where(corners, corner_g, np.inf), axis=0))
+    g_range = np.where(corners.any(axis=0), g_range, np.nan)
     return vertices, (log_rho, psi, edge_cells, g_range), reaches
 
 

@@ -32,9 +32,11 @@ def image_spectrum(law, nu, r, g, weight, hits, pixel_solid_angle_sr):
     nu : ndarray (F,)
         Observed frequencies in Hz.
     r, g, weight : ndarray (N, orders)
-        Crossing radii, redshift factors and limb-darkening weights.
+        Crossing radii, redshift factors and weights (limb darkening times the
+        image-plane area each sample stands for).
     hits : ndarray of bool (N, orders)
     pixel_solid_angle_sr : float
+        Solid angle of a unit of ``weight`` (a pixel of weight 1, or 1 M^2).
     """
     t_obs = (g * law.colour_temperature(r))[hits]
     w = weight[hits]
@@ -175,7 +177,8 @@ def line_profile(g, emissivity, hits, rest_energy_kev, bins, low_ratio, high_rat
     table : dict of ndarray
         ``energy_low_kev``, ``energy_high_kev``, ``energy_kev`` (bin centres),
         ``counts`` (photon counts per bin, normalised to sum 1 over the bins),
-        ``counts_per_kev``, ``energy_flux`` (g^4 eps per bin, image units).
+        ``counts_per_kev``, ``energy_flux`` (g^4 eps per bin, image units), ``photons``
+        (g^3 eps per bin, not normalised).
     image : ndarray (N,)
         Line intensity per pixel, sum over orders of g^4 eps (same units as ``energy_flux``).
     info : dict
@@ -207,7 +210,7 @@ def line_profile(g, emissivity, hits, rest_energy_kev, bins, low_ratio, high_rat
     table = {
         "energy_low_kev": edges[:-1], "energy_high_kev": edges[1:],
         "energy_kev": 0.5 * (edges[:-1] + edges[1:]), "counts": counts,
-        "counts_per_kev": counts / np.diff(edges), "energy_flux": flux,
+        "counts_per_kev": counts / np.diff(edges), "energy_flux": flux, "photons": photons,
     }
     info = {"line_energy_kev": rest_energy_kev,
             "photons_outside_bins": 0.0 if total_photons == 0 else 1.0 - in_range / total_photons,
