@@ -400,6 +400,17 @@ BAD_SCENES_WITH_FILES = [
      ["observing.spectrum_high", "observing.spectrum_low"]),
     ("negative-opacity", "emission:\n  law: novikov_thorne\n  opacity: -1\n", {},
      ["emission.opacity", "-1"]),
+    ("inner-index-too-steep", "emission:\n  law: broken_power_law\n  inner_index: 25\n", {},
+     ["emission.inner_index", "25"]),
+    ("outer-index-not-a-number", "emission:\n  outer_index: steep\n", {},
+     ["emission.outer_index", "'steep'"]),
+    ("break-radius-zero", "emission:\n  break_radius: 0\n", {}, ["emission.break_radius", "0"]),
+    ("break-radius-negative", "emission:\n  break_radius: -6\n", {},
+     ["emission.break_radius", "-6"]),
+    ("sampling-tolerance-zero", "observing:\n  sampling_tolerance: 0\n", {},
+     ["observing.sampling_tolerance", "0"]),
+    ("sampling-tolerance-too-loose", "observing:\n  sampling_tolerance: 0.5\n", {},
+     ["observing.sampling_tolerance", "0.5"]),
 ]
 
 
