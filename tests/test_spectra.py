@@ -192,3 +192,14 @@ def test_camera_line_warns_that_it_sums_pixels_and_when_cropped(small_scene, fie
         result = render_still(scene)
     warnings = result.metadata["observing"]["warnings"]
     assert any("image border" in w for w in warnings) == cropped
+
+
+def test_camera_line_warns_when_its_pixels_are_coarser_than_the_bins(small_scene):
+    # 8 x 8 pixels over a disk whose g spans ~0.5 give each pixel a g range far above a
+    # bin of 1.4 / 2000 = 0.0007 (arithmetic), so the profile is smoothed by the pixels.
+    scene = small_scene(**{"observing.mode": "line", "observer.placement": "camera",
+                           "observer.distance": 1000.0, "observer.field_of_view": 60.0,
+                           "observing.line_bins": 2000, "image.width": 8, "image.height": 8})
+    with pytest.warns(NullrayWarning):
+        result = render_still(scene)
+    assert any("more than one line bin" in w for w in result.metadata["observing"]["warnings"])

@@ -348,6 +348,13 @@ def _picture_tables(obs, scene, r, g, weight, hits):
     if obs.mode == "spectrum":
         return {"spectrum": _spectrum_table(obs, scene, r, g, weight * area, hits)}, info
     spread = redshift_spread(g, hits, scene["image.height"], scene["image.width"])
+    bin_g = (scene["observing.line_high"] - scene["observing.line_low"]) / scene[
+        "observing.line_bins"]
+    lit = hits & np.isfinite(g)
+    if lit.any() and np.median((spread[0] + spread[1])[lit]) > bin_g:
+        info["warnings"].append(
+            "a typical pixel covers more than one line bin in g: the profile is smoothed by "
+            "the picture's sampling (more pixels, fewer bins, or a distant observer)")
     table, line_info = _line_table(obs, scene, r, g, weight * area, hits, spread)
     info["warnings"] += line_info.pop("warnings", [])
     info.update(line_info)
