@@ -29,12 +29,13 @@ from .output.files import (check_free, published_together, still_paths, sweep_de
                            write_still)
 from .output.products import product_paths, write_products
 from .parallel import (auto_workers, capped_workers, check_scheduler, connect, frame_results,
-                       render_still_on_cluster)
+                       render_still_on_cluster, task_results)
+from .tables.grid import build_table, compute_point, parse_vary, plan_table, table_paths
 from .scene.keys import keys_reference
 from .scene.loader import default_scene, load_scene, preview_film, preview_scene
 
 __all__ = ["open_scene", "keys_reference", "render_still", "make_still", "render_sequence",
-           "make_measurement", "plot", "make_figures"]
+           "make_measurement", "plot", "make_figures", "make_table_model"]
 
 
 def open_scene(path=None, overrides=(), *, allow_outside_files=False):
@@ -245,6 +246,56 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
 
         return _render_sequence_here(scene, output_dir, run_frames=run_frames,
                                      overwrite=overwrite, progress=progress, products=products)
+    finally:
+        if client is not None:
+            client.close()
+
+
+def make_table_model(scene, varies, output_dir="outputs", *, workers=1, scheduler=None,
+                     overwrite=False, progress=None):
+    """Compute a scene's line or spectrum on a grid of parameters and write a FITS table model.
+
+    Parameters
+    ----------
+    scene : Scene
+        ``observing.mode`` line or spectrum, ``observer.placement: distant``.
+    varies : list of str or Vary
+        ``"key=low:high:count"`` (as given to ``--vary``), e.g.
+        ``"black_hole.spin=0:0.998:8"``; the grid is every combination.
+    output_dir : str or Path
+        The table goes to ``<name>_table.fits``, finished points to the side
+        folder ``<name>_table_points/`` (a new run resumes from them).
+    workers : int or None
+        Local processes (None: one per core when enough points are left).
+    scheduler : str, optional
+        A Dask distributed scheduler's address.
+    overwrite : bool
+    progress : callable, optional
+        ``progress(done, total, seconds)``, e.g. :class:`render.progress.GridProgress`.
+
+    Returns
+    -------
+    paths, summary : dict, dict
+
+    Every point is checked before any tracing (a bad range or key: one-line error).
+    """
+    varies = [parse_vary(v) if isinstance(v, str) else v for v in varies]
+    if workers is not None and workers < 1:
+        raise UsageError(f"--workers {workers} is not allowed; expected N >= 1")
+    jobs, _, _ = plan_table(scene, varies)
+    check_free([table_paths(scene, output_dir)["table"]], overwrite)
+    _check_writable_folder(Path(output_dir))
+    client = connect(scheduler) if scheduler is not None else None
+    try:
+        def run_points(todo):
+            if client is not None:
+                return task_results(compute_point, todo, client=client)
+            count = auto_workers(len(todo)) if workers is None else capped_workers(
+                workers, len(todo))[0]
+            return task_results(compute_point, todo, workers=count)
+
+        return build_table(scene, varies, output_dir, run_points=run_points,
+                           overwrite=overwrite, progress=progress)
     finally:
         if client is not None:
             client.close()

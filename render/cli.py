@@ -74,6 +74,19 @@ def _parser():
                              "default: intensity)")
     _add_common_options(figure)
 
+    table = commands.add_parser(
+        "table", help="a line or spectrum on a grid of parameters, as a FITS table model")
+    table.add_argument("scene", help="YAML scene file (observing.mode line or spectrum)")
+    table.add_argument("--vary", dest="varies", action="append", default=[],
+                       metavar="KEY=LOW:HIGH:COUNT",
+                       help="a numeric key's grid, e.g. black_hole.spin=0:0.998:8 (repeatable)")
+    _add_common_options(table)
+    table.add_argument("--workers", type=int, default=None, metavar="N",
+                       help="local processes computing grid points (default: one per core)")
+    table.add_argument("--scheduler", metavar="ADDRESS",
+                       help="Dask distributed scheduler, e.g. tcp://10.0.0.5:8786")
+    table.add_argument("--quiet", action="store_true", help="print nothing on success")
+
     measure = commands.add_parser(
         "measure", help="measure the shadow against the analytic prediction (exit 1 on a miss)")
     measure.add_argument("scene", help="YAML scene file")
@@ -130,6 +143,26 @@ def _figure(args):
                          overrides=args.overrides, overwrite=args.overwrite)
     for path in paths.values():
         print(f"wrote {path}")
+    return 0
+
+
+def _table(args):
+    from .api import make_table_model
+    from .progress import GridProgress
+
+    if not args.varies:
+        raise UsageError("nullray table needs at least one --vary KEY=LOW:HIGH:COUNT")
+    scene = _load(args)
+    bar = GridProgress(quiet=args.quiet)
+    try:
+        paths, summary = make_table_model(scene, args.varies, args.output_dir,
+                                          workers=args.workers, scheduler=args.scheduler,
+                                          overwrite=args.overwrite, progress=bar)
+    finally:
+        bar.close()
+    if not args.quiet:
+        print(f"{summary['points']} grid points over {', '.join(summary['parameters'])}; "
+              f"wrote {paths['table']} (finished points kept in {paths['points']}/)")
     return 0
 
 
@@ -259,6 +292,8 @@ def _run(args, shown):
         return _figure(args)
     if args.command == "sequence":
         return _sequence(args)
+    if args.command == "table":
+        return _table(args)
     return _still(args, shown)
 
 

@@ -48,10 +48,14 @@ class WorkerLostError(RuntimeError):
     """A worker process or cluster worker died while rendering; the message is one line."""
 
 
+class TableIncomplete(RuntimeError):
+    """Some grid points of a table model failed; the finished ones are kept (one line)."""
+
+
 # Refusals before any work (exit status 2) and failures while running (exit status 1).
 BAD_INPUT_ERRORS = (SceneError, UsageError, OutputExists, OutputFolderError, SequenceFolderError,
                     SchedulerError)
-RUN_ERRORS = (OutputWriteError, WorkerLostError)
+RUN_ERRORS = (OutputWriteError, WorkerLostError, TableIncomplete)
 
 
 class NullrayWarning(UserWarning):

@@ -31,7 +31,7 @@ from .imaging.still import _render_band
 from .imaging.tiling import is_tileable, plan_still, render_in_tiles
 from .light.observing import prepare_observation
 
-__all__ = ["SchedulerError", "auto_workers", "capped_workers", "connect", "check_scheduler",
+__all__ = ["task_results", "SchedulerError", "auto_workers", "capped_workers", "connect", "check_scheduler",
            "frame_results", "local_threads", "render_still_on_cluster"]
 
 CONNECT_TIMEOUT_S = 10
@@ -207,6 +207,45 @@ def frame_results(jobs, workers=1, client=None, worker_wait=WORKER_WAIT_S):
                              initializer=_pool_init, initargs=(os.getpid(),)) as pool:
         futures = [pool.submit(render_frame, job, threads) for job in jobs]
         yield from _results_in_order(futures)
+
+
+def task_results(function, jobs, workers=1, client=None, worker_wait=WORKER_WAIT_S):
+    """Yield ``function(job, numba_threads)`` for each job, in the jobs' order.
+
+    The generic counterpart of :func:`frame_results` (used by table models,
+    :mod:`render.tables.grid`): in this process (``workers`` 1), on a local pool of
+    spawned processes, or on a Dask cluster (``client``), with each worker's
+    numba threads capped so that the cores are shared, not oversubscribed.
+    """
+    jobs = list(jobs)
+    if not jobs:
+        return
+    if client is not None:
+        threads = _dask_threads(client)
+        futures = [client.submit(_dask_call, function, job, threads, pure=False,
+                                 key=f"nullray-task-{index}-{id(jobs)}")
+                   for index, job in enumerate(jobs)]
+        yield from _results_in_order(futures, client, worker_wait)
+        return
+    if workers <= 1:
+        for job in jobs:
+            yield function(job)
+        return
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    context = multiprocessing.get_context("spawn")   # numba's threads are not fork-safe
+    threads = local_threads(workers)
+    with ProcessPoolExecutor(max_workers=int(workers), mp_context=context,
+                             initializer=_pool_init, initargs=(os.getpid(),)) as pool:
+        futures = [pool.submit(function, job, threads) for job in jobs]
+        yield from _results_in_order(futures)
+
+
+def _dask_call(function, job, threads):
+    from dask.distributed import get_worker
+
+    return function(job, threads.get(get_worker().address, 1))
 
 
 def _results_in_order(futures, client=None, worker_wait=WORKER_WAIT_S):

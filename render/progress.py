@@ -94,3 +94,49 @@ class FrameProgress:
         if self._bar is not None:
             self._bar.close()
             self._bar = None
+
+
+class GridProgress:
+    """``progress(done, total, seconds)`` callback of a table model's grid (:mod:`render.tables.grid`).
+
+    A bar with the time left on a terminal, else one line per point with the
+    estimate; ``seconds`` is None at the start (``done`` points already finished
+    by an earlier run).
+    """
+
+    def __init__(self, quiet=False, stream=None):
+        self.stream = stream or sys.stderr
+        self.quiet = quiet
+        self.terminal = _is_terminal(self.stream)
+        self._bar = None
+        self._started = None
+        self._first_done = 0
+
+    def __call__(self, done, total, seconds):
+        if self.quiet:
+            return
+        if seconds is None:
+            self._started = time.monotonic()
+            self._first_done = done
+            if self.terminal:
+                from tqdm import tqdm
+
+                self._bar = tqdm(total=total, initial=done, desc="grid points", unit="point",
+                                 file=self.stream, dynamic_ncols=True)
+            elif done:
+                print(f"resuming: {done}/{total} grid points already finished",
+                      file=self.stream, flush=True)
+            return
+        if self._bar is not None:
+            self._bar.update(done - self._bar.n)
+            return
+        elapsed = time.monotonic() - self._started
+        new = done - self._first_done
+        left = elapsed / new * (total - done) if new else float("nan")
+        print(f"grid point {done}/{total} done in {seconds:.2f} s; about {left:.0f} s left",
+              file=self.stream, flush=True)
+
+    def close(self):
+        if self._bar is not None:
+            self._bar.close()
+            self._bar = None

@@ -19,7 +19,7 @@ import render.parallel
 import render.output.files as files
 from render.errors import (BAD_INPUT_ERRORS, RUN_ERRORS, OutputExists, OutputFolderError,
                            OutputWriteError, SceneError, SchedulerError, SequenceFolderError,
-                           UsageError, WorkerLostError)
+                           TableIncomplete, UsageError, WorkerLostError)
 from render.output.files import atomic_write
 from render.parallel import _results_in_order
 
@@ -217,7 +217,33 @@ REFUSALS = {SceneError: scene_error, OutputExists: output_exists,
 def test_every_error_class_has_a_command_line_case():
     # Every refusal class has a row below, and the run errors are tested above.
     assert set(REFUSALS) == set(BAD_INPUT_ERRORS)
-    assert set(RUN_ERRORS) == {OutputWriteError, WorkerLostError}
+    assert set(RUN_ERRORS) == {OutputWriteError, WorkerLostError, TableIncomplete}
+
+
+def test_a_table_with_a_failed_point_exits_1_with_one_line(tmp_path, capsys, monkeypatch):
+    # A grid point that fails (here: made to) is one warning line, then one error line,
+    # exit status 1, and the finished point is kept for the next run.
+    from render.tables import grid
+
+    real = grid.point_spectrum
+
+    def fail_at_40(observation, scene):
+        if scene["observer.inclination"] == 40.0:
+            raise RuntimeError("lost")
+        return real(observation, scene)
+
+    monkeypatch.setattr(grid, "point_spectrum", fail_at_40)
+    scene = tmp_path / "scene.yaml"
+    scene.write_text("name: t\nobserver:\n  placement: distant\nobserving:\n  mode: line\n"
+                     "  sampling_tolerance: 0.05\ndisk:\n  orders: 1\n")
+    status, out, err = run_cli(["table", scene, "--vary", "observer.inclination=20:40:2",
+                                "--workers", "1", "--output-dir", tmp_path / "out", "--quiet"],
+                               capsys)
+    lines = err.strip().split("\n")
+    assert status == 1 and "Traceback" not in err
+    assert lines[0].startswith("nullray: warning: grid point") and "lost" in lines[0]
+    assert lines[1].startswith("nullray: error: 1 of 2 grid points failed") and len(lines) == 2
+    assert len(list((tmp_path / "out" / "t_table_points").glob("point_*.npz"))) == 1
 
 
 @pytest.mark.parametrize("error", list(REFUSALS), ids=lambda e: e.__name__)

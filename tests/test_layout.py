@@ -17,7 +17,7 @@ PACKAGE = Path(render.__file__).parent
 ORDER = [
     {"errors", "units", "about", "progress", "guards"},
     {"spacetime"}, {"camera"}, {"geodesics"}, {"light"}, {"imaging"}, {"scene"},
-    {"output"}, {"film", "measure"}, {"parallel"}, {"api"}, {"composer"}, {"cli"},
+    {"output"}, {"film", "measure", "tables"}, {"parallel"}, {"api"}, {"composer"}, {"cli"},
     {"__main__", "__init__"},
 ]
 RANK = {room: rank for rank, rooms in enumerate(ORDER) for room in rooms}

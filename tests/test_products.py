@@ -6,10 +6,12 @@ specification for the 16-bit PNG, and astropy.io.fits for FITS.
 """
 
 import csv
+import json
 import struct
 import zlib
 
 import numpy as np
+import pandas
 import pytest
 from astropy.io import fits
 from PIL import Image
@@ -30,8 +32,10 @@ def document(mode, fits_wanted=False, name="shot"):
     ("monochromatic", True, {"fits": "shot.fits"}),
     ("true_colour", False, {"png16": "shot_16bit.png", "linear": "shot_linear.npy"}),
     ("spectrum", True, {"fits": "shot.fits", "spectrum_csv": "shot_spectrum.csv",
+                        "spectrum_json": "shot_spectrum.json",
                         "spectrum_png": "shot_spectrum.png"}),
-    ("line", False, {"line_csv": "shot_line.csv", "line_png": "shot_line.png"}),
+    ("line", False, {"line_csv": "shot_line.csv", "line_json": "shot_line.json",
+                     "line_png": "shot_line.png"}),
 ])
 def test_product_paths_per_mode(tmp_path, mode, fits_wanted, expected):
     paths = product_paths(document(mode, fits_wanted), tmp_path)
@@ -44,22 +48,37 @@ TABLE = {"frequency_hz": np.geomspace(1e14, 1e19, 7),
          "flux_flat_jy": np.linspace(-1.0, 1.0, 7)}
 
 
-def test_table_csv_is_read_by_numpy_and_the_csv_module(tmp_path):
+def test_table_csv_is_read_by_numpy_pandas_and_the_csv_module(tmp_path):
     path = tmp_path / "t.csv"
-    write_table_csv(path, TABLE, header="# F_nu in Jy; a comment line")
-    # numpy.genfromtxt with names=True reads the names from the first line even when it
-    # is a comment, so the one comment line is skipped first.
-    data = np.genfromtxt(path, delimiter=",", names=True, skip_header=1)
+    write_table_csv(path, TABLE)
+    # Default options of each reader (common practice: one header row, no comment line).
+    data = np.genfromtxt(path, delimiter=",", names=True)
     assert list(data.dtype.names) == list(TABLE)
+    frame = pandas.read_csv(path)
+    assert list(frame.columns) == list(TABLE)
     for name, column in TABLE.items():
         # The module writes 10 significant digits ("%.10g"): rounding to them moves a
         # value by at most half a unit in the 10th digit, 5e-10 relative.
         np.testing.assert_allclose(data[name], column, rtol=5e-10, atol=0)
+        np.testing.assert_allclose(frame[name].to_numpy(), column, rtol=5e-10, atol=0)
     with open(path, newline="", encoding="utf-8") as handle:
         rows = list(csv.reader(handle))
-    assert rows[0] == ["# F_nu in Jy; a comment line"]   # the comment is line 1
-    assert rows[1] == list(TABLE)
-    assert len(rows) == 2 + 7 and all(len(row) == 3 for row in rows[1:])
+    assert rows[0] == list(TABLE)
+    assert len(rows) == 1 + 7 and all(len(row) == 3 for row in rows)
+
+
+def test_line_still_writes_csv_and_sidecar_that_describe_the_same_columns(tmp_path):
+    from render.api import make_still
+
+    scene = default_scene(**{"name": "shot", "image.width": 16, "image.height": 16,
+                             "observer.placement": "distant", "observing.mode": "line",
+                             "observing.line_bins": 50, "output.npz": False})
+    _, paths = make_still(scene, tmp_path)
+    frame = pandas.read_csv(paths["line_csv"])
+    sidecar = json.loads(paths["line_json"].read_text())
+    assert list(frame.columns) == list(sidecar["columns"]) and len(frame) == sidecar["rows"] == 50
+    assert all(sidecar["columns"].values())   # every column is explained
+    assert "pixel_scale" in sidecar["observing"] and sidecar["scene"]["name"] == "shot"
 
 
 def test_table_csv_does_not_overwrite(tmp_path):

@@ -436,6 +436,17 @@ BAD_SCENES_WITH_FILES = [
      {"b.csv": b"u_glambda,v_glambda\nfar,1\n"}, ["b.csv", "not a number"]),
     ("baselines-empty", "visibilities:\n  compute: true\n  baselines: b.csv\n",
      {"b.csv": b"u_glambda,v_glambda\n"}, ["b.csv", "no baselines"]),
+    ("inner-index-too-steep", "emission:\n  law: broken_power_law\n  inner_index: 25\n", {},
+     ["emission.inner_index", "25"]),
+    ("outer-index-not-a-number", "emission:\n  outer_index: steep\n", {},
+     ["emission.outer_index", "'steep'"]),
+    ("break-radius-zero", "emission:\n  break_radius: 0\n", {}, ["emission.break_radius", "0"]),
+    ("break-radius-negative", "emission:\n  break_radius: -6\n", {},
+     ["emission.break_radius", "-6"]),
+    ("sampling-tolerance-zero", "observing:\n  sampling_tolerance: 0\n", {},
+     ["observing.sampling_tolerance", "0"]),
+    ("sampling-tolerance-too-loose", "observing:\n  sampling_tolerance: 0.5\n", {},
+     ["observing.sampling_tolerance", "0.5"]),
 ]
 
 

@@ -1,6 +1,7 @@
 """Sequence products: video decodes back, GIF, contact sheet, light curve files, flash check."""
 
 import csv
+import json
 
 import imageio.v2 as imageio
 import numpy as np
@@ -54,6 +55,13 @@ def test_light_curve_csv_lists_every_frame(orbit_sequence):
     assert [int(r["frame"]) for r in rows] == list(range(6))
     assert [float(r["observer_time_M"]) for r in rows] == [15.0 * k for k in range(6)]
     assert np.allclose([float(r["flux"]) for r in rows], orbit_sequence.fluxes)
+    # GM_sun/c^3 = 4.925491e-6 s (IAU 2015 nominal solar mass parameter; from memory), times
+    # the scene's mass; 1e-6 relative covers the constants' digits.
+    mass = json.loads((orbit_sequence.paths["lightcurve_csv"].with_suffix(".json")).read_text())[
+        "mass_msun"]
+    for row in rows:
+        assert float(row["observer_time_s"]) == pytest.approx(
+            float(row["observer_time_M"]) * 4.925491e-6 * mass, rel=1e-6)
     assert Image.open(orbit_sequence.paths["lightcurve_png"]).format == "PNG"
     assert orbit_sequence.flash["passes"]
 

@@ -19,7 +19,8 @@ from ..output.video import (FRAME_PATTERN, VIDEO_EXTRA_MISSING, contact_sheet,
                             video_writer_available, write_gif, write_light_curve_png,
                             write_video)
 from ..scene.keys import KEYS
-from ..units import angular_gravitational_radius_uas, gravitational_time_s
+from ..light.observing import solid_angle_per_area_sr
+from ..units import gravitational_time_s
 from .flash import flash_check, relative_luminance
 
 __all__ = ["write_sequence_products"]
@@ -65,7 +66,8 @@ def write_sequence_products(folder, plan, manifest):
     fluxes = [manifest["frames"][f"{k:05d}"]["flux"] for k in range(count)]
     distant = plan.scene["observer.placement"] == "distant"
     unit = "retarded time u" if distant else "camera proper time"
-    paths["lightcurve_csv"] = _write_light_curve_csv(folder / "lightcurve.csv", plan.jobs, fluxes)
+    paths["lightcurve_csv"] = _write_light_curve_csv(folder / "lightcurve.csv", plan.jobs, fluxes,
+                                                     plan.scene)
     paths["lightcurve_png"] = write_light_curve_png(folder / "lightcurve.png", clocks, fluxes,
                                                     unit, **_light_curve_scales(plan))
     flash = flash_check([relative_luminance(f) for f in frames], plan.fps)
@@ -105,20 +107,41 @@ def _light_curve_scales(plan):
     G M / (c^2 D)) it is the flux at the observer, erg s^-1 cm^-2 when I is in cgs.
     """
     scene = plan.scene
-    mass, distance = scene["black_hole.mass"], scene["black_hole.distance"]
-    scales = {"seconds_per_m": gravitational_time_s(mass), "swept": swept_key(plan)}
+    scales = {"seconds_per_m": gravitational_time_s(scene["black_hole.mass"]),
+              "swept": swept_key(plan)}
     if scene["emission.law"] == "novikov_thorne" and scene["observing.mode"] == "bolometric":
-        theta_g = angular_gravitational_radius_uas(mass, distance) * np.pi / (180 * 3600 * 1e6)
-        scales.update(flux_scale=theta_g ** 2, flux_unit="erg s^-1 cm^-2")
+        scales.update(flux_scale=solid_angle_per_area_sr(scene), flux_unit="erg s^-1 cm^-2")
     return scales
 
 
-def _write_light_curve_csv(path, jobs, fluxes):
-    """One row per frame: its number, observer time, coordinate time and flux (exact reprs)."""
+def _write_light_curve_csv(path, jobs, fluxes, scene):
+    """One row per frame: its number, times in M and in seconds, and its flux (exact reprs).
+
+    ``flux`` is the sum of the pixels' intensities times a pixel's area in M^2;
+    ``flux_physical`` multiplies it by the solid angle of 1 M^2 at the hole's
+    distance, (GM/(c^2 D))^2 sr, giving the emission law's intensity unit times sr
+    (erg s^-1 cm^-2 for novikov_thorne, arbitrary for the others).  A sidecar
+    ``lightcurve.json`` names each column's unit.
+    """
+    seconds = gravitational_time_s(scene["black_hole.mass"])
+    steradians = solid_angle_per_area_sr(scene)
     text = io.StringIO()
     writer = csv.writer(text, lineterminator="\n")
-    writer.writerow(["frame", "observer_time_M", "coordinate_time_M", "flux"])
+    writer.writerow(["frame", "observer_time_M", "coordinate_time_M", "flux",
+                     "observer_time_s", "coordinate_time_s", "flux_physical"])
     for job, flux in zip(jobs, fluxes):
-        writer.writerow([job.index, repr(job.clock), repr(job.coordinate_time), repr(flux)])
+        writer.writerow([job.index, repr(job.clock), repr(job.coordinate_time), repr(flux),
+                         repr(job.clock * seconds), repr(job.coordinate_time * seconds),
+                         repr(flux * steradians)])
     data = text.getvalue().encode()
+    law_unit = ("erg s^-1 cm^-2" if scene["emission.law"] == "novikov_thorne"
+                else "the emission law's (arbitrary) intensity unit x sr")
+    columns = {"frame": "frame number", "observer_time_M": "observer's clock, M (GM/c^3)",
+               "coordinate_time_M": "coordinate time, M", "flux": "sum of intensity x pixel "
+               "area, law units x M^2", "observer_time_s": "observer's clock, s",
+               "coordinate_time_s": "coordinate time, s", "flux_physical": law_unit}
+    sidecar = (json.dumps({"columns": columns, "mass_msun": scene["black_hole.mass"],
+                           "distance_pc": scene["black_hole.distance"]}, indent=1) + "\n")
+    atomic_write(Path(path).with_suffix(".json"), lambda f: f.write(sidecar.encode()),
+                 overwrite=True)
     return atomic_write(path, lambda f: f.write(data), overwrite=True)

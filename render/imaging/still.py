@@ -2,14 +2,17 @@
 
 import dataclasses
 import time
+import warnings
 from datetime import datetime, timezone
 
 import numpy as np
 
 from ..about import __version__, software_versions
-from ..light.disk import on_disk, redshift_factor
-from ..light.observing import PER_ORDER_PRODUCTS, prepare_observation, shade
-from ..geodesics.integrator import FATE_DISK, FATE_NAMES
+from ..errors import NullrayWarning
+from ..light.disk import redshift_factor, shining_mask
+from ..light.observing import (PER_ORDER_PRODUCTS, disk_integrated_tables, prepare_observation,
+                               samples_own_grid, shade)
+from ..geodesics.integrator import FATE_NAMES
 from ..geodesics.tracing import energy_signs, trace
 from ..spacetime.kerr import horizon_radii, isco_radius
 from .result import StillResult
@@ -53,7 +56,8 @@ def render_still(scene, progress=None, *, memory_budget=None, workdir=None, maps
     if needs_sensor(scene):
         prepare_sky(scene)  # a bad sky image fails before any tracing too
     if plan.tiles == 1:
-        return _with_ticks(scene, _render_band(scene, observation, None, progress, maps))
+        result = _render_band(scene, observation, None, progress, maps)
+        return _with_ticks(scene, _with_disk_integrals(scene, observation, result))
     result = render_in_tiles(
         scene, plan, lambda rows, band_progress: _render_band(scene, observation, rows,
                                                               band_progress, maps),
@@ -73,6 +77,41 @@ def _with_ticks(scene, result):
         return result
     p = result.products
     result.pixels = draw_ticks(result.pixels, p["stokes_i"], p["stokes_q"], p["stokes_u"])
+    return result
+
+
+POLARISED_SPECTRUM_COLUMNS = ("stokes_q_jy", "stokes_u_jy", "polarised_degree",
+                              "polarisation_angle_deg")
+
+
+def _with_disk_integrals(scene, observation, result):
+    """Add the spectrum or line of the whole disk, sampled on its own grid (distant observer).
+
+    These modes are never tiled (:func:`render.imaging.tiling.is_tileable`); their
+    warnings go to the metadata and, as :class:`render.errors.NullrayWarning`, to
+    Python callers.
+    """
+    if observation.mode not in ("spectrum", "line"):
+        return result
+    if not samples_own_grid(scene):
+        for message in result.metadata["observing"].get("warnings", ()):
+            warnings.warn(message, NullrayWarning, stacklevel=3)
+        return result
+    started = time.perf_counter()
+    tables, info = disk_integrated_tables(observation, scene)
+    # The grid carries no polarisation yet: the picture's Q_nu, U_nu, degree and angle
+    # (render.light.observing.polarised_spectrum) stay beside the grid's spectrum.
+    polarised = {name: column for name, column in result.tables.get("spectrum", {}).items()
+                 if name in POLARISED_SPECTRUM_COLUMNS}
+    result.tables.update(tables)
+    if polarised:
+        result.tables["spectrum"].update(polarised)
+    observed = result.metadata["observing"]
+    observed.setdefault("warnings", []).extend(info.pop("warnings"))
+    observed.update(info)
+    observed["disk_grid"]["seconds"] = time.perf_counter() - started
+    for message in observed["warnings"]:
+        warnings.warn(message, NullrayWarning, stacklevel=3)
     return result
 
 
@@ -227,13 +266,8 @@ def shining_crossings(scene, raw, bundle):
     A crossing shines if it lies on the disk; for an opaque disk only the one that
     ended the ray does (earlier ones missed the disk).
     """
-    orders = scene["disk.orders"]
     g = redshift_factor(raw["r"], bundle.lam[:, None], scene.spin, bundle.energy_ratio[:, None])
-    hits = on_disk(raw["r"], scene.inner_radius, scene["disk.outer_radius"])
-    if scene["disk.surface"] == "opaque":
-        last = np.clip(raw["n_crossings"] - 1, 0, orders - 1)
-        keep = np.zeros_like(hits)
-        rows = np.nonzero((raw["fate"] == FATE_DISK) & (raw["n_crossings"] <= orders))[0]
-        keep[rows, last[rows]] = True
-        hits &= keep
+    hits = shining_mask(raw["r"], raw["fate"], raw["n_crossings"], scene.inner_radius,
+                        scene["disk.outer_radius"], scene["disk.orders"],
+                        scene["disk.surface"] == "opaque")
     return g, hits

@@ -17,12 +17,13 @@ which contains the gravitational and the Doppler shift together
 
 import numpy as np
 
+from ..geodesics.integrator import FATE_DISK as _FATE_DISK
 from ..spacetime.kerr import circular_orbit_time_component, isco_radius, keplerian_angular_velocity
 
 # opaque: a ray ends at its first crossing on the disk; transparent: orders add up.
 SURFACES = ("opaque", "transparent")
 
-__all__ = ["redshift_factor", "on_disk"]
+__all__ = ["redshift_factor", "on_disk", "shining_mask"]
 
 
 def redshift_factor(r, lam, spin, energy_ratio=1.0, inside_isco="nan"):
@@ -71,3 +72,20 @@ def on_disk(r, r_in, r_out):
     r = np.asarray(r, dtype=float)
     with np.errstate(invalid="ignore"):
         return (r >= r_in) & (r <= r_out)
+
+
+def shining_mask(r, fate, n_crossings, r_in, r_out, orders, opaque):
+    """Crossings (N, orders) that shine: on the disk and, for an opaque disk, the one that ended the ray.
+
+    An opaque disk stops a ray at its first crossing between its edges (fate 2,
+    :mod:`render.geodesics.integrator`), so earlier crossings missed the disk and
+    later ones never happen.
+    """
+    hits = on_disk(r, r_in, r_out)
+    if not opaque:
+        return hits
+    last = np.clip(np.asarray(n_crossings) - 1, 0, orders - 1)
+    keep = np.zeros_like(hits)
+    rows = np.nonzero((np.asarray(fate) == _FATE_DISK) & (np.asarray(n_crossings) <= orders))[0]
+    keep[rows, last[rows]] = True
+    return hits & keep

@@ -15,38 +15,45 @@ true_colour
     T_c seen with factor g is exactly f^-4 B_nu(g T_c) (I_nu/nu^3 invariant), so
     XYZ = sum L(mu) f^-4 XYZ_bb(g T_c): one precomputed table, no per-pixel loop.
 spectrum
-    Disk-integrated F_nu (Jy) on a log frequency grid, from the ray-traced image
-    (all relativistic effects) and from the same local emission in flat space
-    (no light bending, no Doppler or gravitational shift, seen at the same
-    inclination).
+    Disk-integrated F_nu (Jy) and nu F_nu (erg s^-1 cm^-2) on a log frequency
+    grid, ray-traced (all relativistic effects) and for the same local emission
+    in flat space (no light bending, no Doppler or gravitational shift, seen at
+    the same inclination).
 line
     A narrow line at rest energy E0 with the emission law as emissivity: each
-    pixel adds photons at E = g E0 with weight g^3 eps(r) L(mu) (photon number;
-    energy flux weight g^4 eps L).  Normalised counts per energy bin.
+    image-plane element adds photons at E = g E0 with weight g^3 eps(r) L(mu)
+    (energy flux weight g^4 eps L).  Normalised counts, photons and energy flux
+    per keV.
+
+For a distant observer both are integrals over the image plane sampled on a grid
+of their own (:func:`disk_integrated_tables`, :mod:`render.light.disk_integral`),
+independent of the picture; a camera at finite distance sums its pixels and says so.
 
 L(mu) is the limb-darkening factor of :func:`render.light.emission.limb_darkening`
 at the emission angle in the emitter's frame (:func:`render.light.emission.emission_cosine`).
 """
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from .color import automatic_reference_luminance, desaturate_into_gamut, xyz_to_linear_srgb
 from .display import scene_colour_pixels, scene_scalar_pixels
-from .emission import (EmissionTableError, NovikovThorne, PowerLaw, RadialProfile,
+from .emission import (BrokenPowerLaw, EmissionTableError, NovikovThorne, PowerLaw,
+                       RadialProfile,
                        emission_cosine, limb_darkening, observed_bolometric)
-from ..errors import NullrayWarning, SceneError
+from ..errors import SceneError
 from ..units import angular_gravitational_radius_uas
 from .cie import blackbody_xyz_sum
 from .emission import observed_specific_intensity
 from .polarisation import Polarisation, observed_polarisation, stokes_from_crossings
+from .disk_integral import DiskGeometry, converge
 from .spectra import flat_space_spectrum, image_spectrum, line_profile, redshift_spread
 from .thermal import accretion_rate_g_per_s, cgs, radiative_efficiency
 
 __all__ = ["MODES", "Observation", "Shaded", "prepare_observation", "shade", "exposure_white",
-           "check_observing", "observing_frequency_hz", "pixel_angle_rad"]
+           "check_observing", "observing_frequency_hz", "pixel_angle_rad", "disk_integrated_tables",
+           "samples_own_grid", "solid_angle_per_area_sr", "disk_geometry", "pixel_scale"]
 
 MODES = ("bolometric", "monochromatic", "true_colour", "spectrum", "line")
 # Where true colour puts its white: the image's own luminance percentile, or a given value.
@@ -146,6 +153,12 @@ def prepare_observation(scene):
                       limb=scene["emission.limb_darkening"])
     if name == "power_law":
         obs.law = PowerLaw(index=scene["emission.index"])
+    elif name == "broken_power_law":
+        obs.law = BrokenPowerLaw(inner_index=scene["emission.inner_index"],
+                                 outer_index=scene["emission.outer_index"],
+                                 break_radius=scene["emission.break_radius"])
+        info.update({"inner_index": obs.law.inner_index, "outer_index": obs.law.outer_index,
+                     "break_radius": obs.law.break_radius})
     elif name == "profile":
         path = scene.side_file("emission.profile")
         try:
@@ -292,6 +305,7 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
         per_crossing = observed_bolometric(g, law.intensity(r)) * weight
     bolometric = _summed(per_crossing, hits)
     info = dict(obs.info)
+    info.update(pixel_scale(scene))
     products = {}
     if obs.limb != "none" or obs.mode != "bolometric" or law.name != "power_law":
         products["emission_cosine"] = np.where(hits, mu, np.nan)
@@ -312,31 +326,22 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
         info.update(colour_info)
     else:
         pixels = scene_scalar_pixels(scene, intensity, white)
-    if obs.mode in ("spectrum", "line"):
-        # These modes always see the whole image (they are never tiled): a disk
-        # that reaches the border is cropped, and the totals miss what lies outside.
-        cropped = disk_reaches_border(hits, scene["image.height"], scene["image.width"])
-        if cropped:
-            _warn(info, f"the disk reaches the image border: the {obs.mode} counts only what "
-                  "the field of view contains (widen observer.field_of_view)")
-    if obs.mode == "spectrum":
-        tables["spectrum"] = disk_spectrum(obs, scene, r, g, weight, hits)
-        info["spectrum_total_jy"] = {
-            "relativistic_peak": float(tables["spectrum"]["flux_relativistic_jy"].max()),
-            "flat_peak": float(tables["spectrum"]["flux_flat_jy"].max())}
-    elif obs.mode == "line":
-
-        spread = redshift_spread(g, hits, scene["image.height"], scene["image.width"])
-        line, image, line_info = line_profile(
-            g, law.intensity(r) * weight, hits, scene["observing.line_energy"],
-            scene["observing.line_bins"], scene["observing.line_low"],
-            scene["observing.line_high"], g_spread=spread)
-        tables["line"] = line
-        intensity = image
+    if obs.mode == "line":
+        with np.errstate(invalid="ignore"):
+            intensity = _summed(g ** 4 * law.intensity(r) * weight, hits)
         pixels = scene_scalar_pixels(scene, intensity, white)
-        products["line_intensity"] = image
-        info.update(line_info)
+        products["line_intensity"] = intensity
+        info["line_energy_kev"] = scene["observing.line_energy"]
+    if obs.mode in ("spectrum", "line") and not samples_own_grid(scene):
+        tables, picture_info = _picture_tables(obs, scene, r, g, weight, hits)
+        info.setdefault("warnings", []).extend(picture_info.pop("warnings", []))
+        info.update(picture_info)
     if obs.polarisation.model != "none" and alpha is not None:
+        if obs.mode == "spectrum" and "spectrum" not in tables:
+            # The disk grid carries no polarisation yet: the spectrum's Q and U are summed
+            # over the picture's pixels (render.imaging.still keeps them beside the grid's I).
+            pixel_area = (scene["observer.field_of_view"] / scene["image.width"]) ** 2
+            tables["spectrum"] = _spectrum_table(obs, scene, r, g, weight * pixel_area, hits)
         _add_polarisation(obs, scene, raw, bundle, (alpha, beta), (mu, per_crossing, g, weight),
                           hits, products, tables)
     if obs.mode in ("bolometric", "true_colour", "spectrum") and law.name == "novikov_thorne":
@@ -402,15 +407,169 @@ def polarised_spectrum(obs, scene, r, g, weight, hits, degree, evpa, table):
     return out
 
 
+def samples_own_grid(scene):
+    """Whether the spectrum and line modes sample the disk on a grid of their own.
+
+    They do for a distant observer (:mod:`render.light.disk_integral`, with the
+    closed form); a camera at finite distance sums the pixels of its picture.
+    """
+    return scene["observer.placement"] == "distant"
+
+
+def _picture_tables(obs, scene, r, g, weight, hits):
+    """The spectrum or line of a camera's picture: a sum over its pixels (it depends on them)."""
+    info = {"warnings": [
+        f"the {obs.mode} of a camera at finite distance sums the pixels of the picture, so it "
+        "depends on image.width and observer.field_of_view; a distant observer "
+        "(observer.placement: distant) samples the disk on a grid of its own"],
+        "sampling": "picture pixels"}
+    if disk_reaches_border(hits, scene["image.height"], scene["image.width"]):
+        info["warnings"].append(
+            f"the disk reaches the image border: the {obs.mode} counts only what the field "
+            "of view contains (widen observer.field_of_view)")
+    pixel_area = (scene["observer.field_of_view"] / scene["image.width"]) ** 2
+    area = np.full(r.shape, pixel_area)
+    if obs.mode == "spectrum":
+        return {"spectrum": _spectrum_table(obs, scene, r, g, weight * area, hits)}, info
+    spread = redshift_spread(g, hits, scene["image.height"], scene["image.width"])
+    bin_g = (scene["observing.line_high"] - scene["observing.line_low"]) / scene[
+        "observing.line_bins"]
+    lit = hits & np.isfinite(g)
+    if lit.any() and np.median((spread[0] + spread[1])[lit]) > bin_g:
+        info["warnings"].append(
+            "a typical pixel covers more than one line bin in g: the profile is smoothed by "
+            "the picture's sampling (more pixels, fewer bins, or a distant observer)")
+    table, line_info = _line_table(obs, scene, r, g, weight * area, hits, spread)
+    info["warnings"] += line_info.pop("warnings", [])
+    info.update(line_info)
+    return {"line": table}, info
+
+
+def solid_angle_per_area_sr(scene):
+    """Solid angle (sr) of 1 M^2 of the image plane at the hole's distance: (GM/(c^2 D))^2."""
+    theta_g = angular_gravitational_radius_uas(scene["black_hole.mass"],
+                                               scene["black_hole.distance"])
+    return (theta_g * np.pi / (180.0 * 3600.0 * 1e6)) ** 2
+
+
+def _line_table(obs, scene, r, g, area_weight, hits, spread):
+    """The line profile (counts, photon and energy flux per keV) of weighted samples.
+
+    ``area_weight`` (N, orders) is the image-plane area in M^2 each sample stands
+    for times its limb-darkening factor.  The emissivity is read as erg s^-1
+    cm^-2 sr^-1 in the emitter's frame, so the physical columns scale with it.
+    """
+    k = cgs()
+    rest = scene["observing.line_energy"]
+    table, _, line_info = line_profile(
+        g, obs.law.intensity(r) * area_weight, hits, rest, scene["observing.line_bins"],
+        scene["observing.line_low"], scene["observing.line_high"], g_spread=spread)
+    width = table["energy_high_kev"] - table["energy_low_kev"]
+    steradians = solid_angle_per_area_sr(scene)
+    energy_flux = table["energy_flux"] * steradians
+    photons = table["photons"] * steradians / (rest * k["keV"])
+    out = {name: table[name] for name in ("energy_low_kev", "energy_high_kev", "energy_kev",
+                                            "counts", "counts_per_kev")}
+    out["photon_flux_per_kev"] = photons / width
+    out["energy_flux_per_kev"] = energy_flux / width
+    info = {"line_energy_kev": rest,
+            "photons_outside_bins": line_info["photons_outside_bins"],
+            "line_photon_flux": float(photons.sum()),
+            "line_energy_flux_erg_s_cm2": float(energy_flux.sum()),
+            "line_units": "photon_flux_per_kev: photons s^-1 cm^-2 keV^-1, energy_flux_per_kev: "
+                          "erg s^-1 cm^-2 keV^-1, for an emissivity in erg s^-1 cm^-2 sr^-1 "
+                          "(the emission law's values taken in these units)"}
+    if line_info["photons_outside_bins"] > 0.01:
+        info["warnings"] = [f"{100 * line_info['photons_outside_bins']:.1f}% of the line's "
+                            "photons fall outside the bins (widen observing.line_low and "
+                            "observing.line_high)"]
+    return out, info
+
+
+def _spectrum_table(obs, scene, r, g, area_weight, hits):
+    """F_nu (Jy) and nu F_nu (erg s^-1 cm^-2), ray-traced and in flat space."""
+    k = cgs()
+    nu = np.geomspace(scene["observing.spectrum_low"], scene["observing.spectrum_high"],
+                      scene["observing.spectrum_points"])
+    relativistic = image_spectrum(obs.law, nu, r, g, area_weight, hits,
+                                  solid_angle_per_area_sr(scene))
+    flat = flat_space_spectrum(obs.law, nu, scene.inner_radius, scene["disk.outer_radius"],
+                               scene["observer.inclination"], scene["black_hole.mass"],
+                               scene["black_hole.distance"], obs.limb)
+    return {"frequency_hz": nu, "energy_kev": nu * k["h"] / k["keV"],
+            "flux_relativistic_jy": relativistic, "flux_flat_jy": flat,
+            "nufnu_relativistic_erg_s_cm2": nu * relativistic * k["Jy"],
+            "nufnu_flat_erg_s_cm2": nu * flat * k["Jy"]}
+
+
+def disk_geometry(scene):
+    """The :class:`~render.light.disk_integral.DiskGeometry` of a distant-observer scene."""
+    return DiskGeometry(spin=scene.spin, inclination_deg=scene["observer.inclination"],
+                        r_in=scene.inner_radius, r_out=scene["disk.outer_radius"],
+                        orders=scene["disk.orders"], opaque=scene["disk.surface"] == "opaque",
+                        max_crossings=scene["tracing.max_crossings"])
+
+
+def disk_integrated_tables(obs, scene):
+    """The spectrum or line of the whole disk, sampled on its own grid (distant observer).
+
+    Returns ``(tables, info)``: ``{"spectrum": ...}`` or ``{"line": ...}`` and the
+    sampling's account (grid, rays, the last L1 change, warnings).  The picture
+    (image.width, field of view) plays no part.
+    """
+    geometry = disk_geometry(scene)
+
+    def weights(samples):
+        return samples.weight * limb_darkening(samples.mu, obs.limb)
+
+    if obs.mode == "spectrum":
+        def measure(samples):
+            return _spectrum_table(obs, scene, samples.r, samples.g, weights(samples),
+                                   samples.hits)["nufnu_relativistic_erg_s_cm2"]
+    else:
+        def measure(samples):
+            spread = (samples.below, samples.above)
+            return _line_table(obs, scene, samples.r, samples.g, weights(samples), samples.hits,
+                               spread)[0]["photon_flux_per_kev"]
+    tolerance = scene["observing.sampling_tolerance"]
+    _, samples = converge(geometry, measure, tolerance)
+    info = {"sampling": "disk grid (log-polar image plane, closed form)",
+            "disk_grid": samples.info}
+    warnings = []
+    if obs.mode == "spectrum":
+        tables = {"spectrum": _spectrum_table(obs, scene, samples.r, samples.g, weights(samples),
+                                              samples.hits)}
+    else:
+        table, line_info = _line_table(obs, scene, samples.r, samples.g, weights(samples),
+                                       samples.hits, (samples.below, samples.above))
+        warnings += line_info.pop("warnings", [])
+        info.update(line_info)
+        tables = {"line": table}
+    if samples.info["truncated"]:
+        warnings.append(f"the disk's image reaches beyond the {obs.mode}'s sampling grid "
+                        f"(rho up to {samples.info['rho_max']:.4g} M): some flux is missing")
+    if not samples.info["converged"]:
+        warnings.append(f"the {obs.mode}'s sampling stopped at {samples.info['cells'][0]} cells "
+                        f"a side with a last change of {samples.info['l1_change']:.2g}, above "
+                        f"observing.sampling_tolerance = {tolerance:g}")
+    info["warnings"] = warnings
+    return tables, info
+
+
 def _add_flux(scene, intensity, products, info):
 
     omega = pixel_angle_rad(scene) ** 2
     flux = intensity * omega / cgs()["Jy"]
     products["flux_density_jy"] = flux
+    info.update({"pixel_solid_angle_sr": omega, "total_flux_jy": float(np.sum(flux))})
+
+
+def pixel_scale(scene):
+    """The picture's pixel scale for the metadata of every mode: in angle and in M."""
     unit = scene["observing.angle_unit"]
     scale = pixel_angle_rad(scene) * 180.0 / np.pi * 3600.0 * (1e6 if unit == "uas" else 1e3)
-    info.update({"pixel_solid_angle_sr": omega, "total_flux_jy": float(np.sum(flux)),
-                 "pixel_scale": scale, "pixel_scale_unit": unit})
+    return {"pixel_scale": scale, "pixel_scale_unit": unit,
+            "pixel_scale_m": scene["observer.field_of_view"] / scene["image.width"]}
 
 
 def colour_xyz(law, r, g, weight):
@@ -439,24 +598,3 @@ def _true_colour(obs, scene, r, g, weight, hits):
             "colour_rule": scene["display.colour_rule"],
             "units": "xyz and rgb_linear: CIE-weighted radiance, erg s^-1 cm^-2 sr^-1"}
     return pixels, products, info
-
-
-def disk_spectrum(obs, scene, r, g, weight, hits):
-    """F_nu (Jy) of the whole disk, ray-traced and in flat space; see the module doc."""
-
-    nu = np.geomspace(scene["observing.spectrum_low"], scene["observing.spectrum_high"],
-                      scene["observing.spectrum_points"])
-    relativistic = image_spectrum(obs.law, nu, r, g, weight, hits, pixel_angle_rad(scene) ** 2)
-    flat = flat_space_spectrum(obs.law, nu, scene.inner_radius, scene["disk.outer_radius"],
-                               scene["observer.inclination"], scene["black_hole.mass"],
-                               scene["black_hole.distance"], obs.limb)
-    return {"frequency_hz": nu, "flux_relativistic_jy": relativistic, "flux_flat_jy": flat}
-
-
-def _warn(info, message):
-    """Record a warning in the still's metadata and warn Python callers (NullrayWarning).
-
-    The command line prints each once, as one ``nullray: warning:`` line.
-    """
-    info.setdefault("warnings", []).append(message)
-    warnings.warn(message, NullrayWarning, stacklevel=3)

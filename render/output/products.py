@@ -6,8 +6,9 @@ Which files a still gets, besides the PNG and NPZ of :mod:`render.output.files`:
   written with astropy.io.fits (FITS Standard 4.0);
 * true_colour: ``<name>_16bit.png`` (16-bit sRGB) and ``<name>_linear.npy``
   (float32 linear sRGB, scene-referred, before exposure, (H, W, 3), row 0 at the top);
-* spectrum: ``<name>_spectrum.csv`` and ``<name>_spectrum.png``;
-* line: ``<name>_line.csv`` and ``<name>_line.png``.
+* spectrum: ``<name>_spectrum.csv`` (one header row), ``<name>_spectrum.json`` (columns,
+  units, metadata) and ``<name>_spectrum.png``;
+* line: ``<name>_line.csv``, ``<name>_line.json`` and ``<name>_line.png``.
 
 All files are written atomically and never replace an existing file unless
 asked (:func:`render.output.files.atomic_write`).
@@ -41,18 +42,21 @@ DISTPC (pc), BHSPIN, INCLIN (deg), plus the mode and emission law.
 
 import csv
 import io
+import json
 import struct
 import zlib
 from pathlib import Path
 
 import numpy as np
 
-from .files import STREAM_CHUNK_BYTES, _npy_file, atomic_path, atomic_write, check_free
+from .files import (STREAM_CHUNK_BYTES, _npy_file, atomic_path, atomic_write, check_free,
+                    jsonable)
 from ..light.observing import pixel_angle_rad
 from ..scene.loader import scene_from_dict
 
 __all__ = ["product_paths", "write_products", "write_fits", "write_png16", "write_npy",
-           "write_table_csv", "fits_hdus", "scene_table_hdu", "read_rows"]
+           "write_table_csv", "write_table_sidecar", "TABLE_COLUMNS", "fits_hdus",
+           "scene_table_hdu", "read_rows"]
 
 
 def product_paths(scene_document, folder):
@@ -68,9 +72,11 @@ def product_paths(scene_document, folder):
         paths["linear"] = folder / f"{name}_linear.npy"
     if mode == "spectrum":
         paths["spectrum_csv"] = folder / f"{name}_spectrum.csv"
+        paths["spectrum_json"] = folder / f"{name}_spectrum.json"
         paths["spectrum_png"] = folder / f"{name}_spectrum.png"
     if mode == "line":
         paths["line_csv"] = folder / f"{name}_line.csv"
+        paths["line_json"] = folder / f"{name}_line.json"
         paths["line_png"] = folder / f"{name}_line.png"
     return paths
 
@@ -88,31 +94,62 @@ def write_products(result, folder="outputs", overwrite=False):
         linear = result.products["rgb_linear"]
         write_npy(paths["linear"], linear, overwrite,
                   chunk_bytes=_block_rows(result, linear[:1].nbytes) * linear[:1].nbytes)
-    if "spectrum_csv" in paths:
-        table = result.tables["spectrum"]
-        polarised = ("; stokes_q_jy, stokes_u_jy: disk-integrated Q_nu, U_nu in Jy; "
-                     "polarisation_angle_deg: IAU, from north through east"
-                     if "stokes_q_jy" in table else "")
-        write_table_csv(paths["spectrum_csv"], table, overwrite,
-                        header="# disk-integrated F_nu in Jy; relativistic: ray-traced image; "
-                               "flat: same local emission without relativistic effects"
-                               + polarised)
-        _plot(paths["spectrum_png"], overwrite, _spectrum_figure, table, result.metadata)
-    if "line_csv" in paths:
-        table = result.tables["line"]
-        write_table_csv(paths["line_csv"], table, overwrite,
-                        header="# line profile: counts = photon counts per bin normalised to "
-                               "sum 1; energy_flux in the image's units")
-        _plot(paths["line_png"], overwrite, _line_figure, table, result.metadata)
+    for kind in ("spectrum", "line"):
+        if f"{kind}_csv" in paths:
+            table = result.tables[kind]
+            write_table_csv(paths[f"{kind}_csv"], table, overwrite)
+            write_table_sidecar(paths[f"{kind}_json"], table, TABLE_COLUMNS[kind],
+                                result.metadata, overwrite)
+            figure = _spectrum_figure if kind == "spectrum" else _line_figure
+            _plot(paths[f"{kind}_png"], overwrite, figure, table, result.metadata)
     return paths
 
 
-def write_table_csv(path, table, overwrite=False, header=None):
-    """Write a dict of equal-length 1-D arrays as CSV (header comment line, then names)."""
+# What each column of the spectrum and line tables holds (the sidecar JSON says it).
+TABLE_COLUMNS = {
+    "spectrum": {
+        "frequency_hz": "observed frequency, Hz",
+        "energy_kev": "observed photon energy h nu, keV",
+        "flux_relativistic_jy": "disk-integrated F_nu, ray-traced (all relativistic effects), Jy",
+        "flux_flat_jy": "F_nu of the same local emission in flat space, Jy",
+        "nufnu_relativistic_erg_s_cm2": "nu F_nu, ray-traced, erg s^-1 cm^-2",
+        "nufnu_flat_erg_s_cm2": "nu F_nu in flat space, erg s^-1 cm^-2",
+        "stokes_q_jy": "disk-integrated Q_nu, Jy (summed over the picture's pixels)",
+        "stokes_u_jy": "disk-integrated U_nu, Jy (summed over the picture's pixels)",
+        "polarised_degree": "sqrt(Q_nu^2 + U_nu^2) / F_nu of the picture's pixels",
+        "polarisation_angle_deg": "IAU polarisation angle, from north through east, deg",
+    },
+    "line": {
+        "energy_low_kev": "low edge of the energy bin, keV",
+        "energy_high_kev": "high edge of the energy bin, keV",
+        "energy_kev": "centre of the energy bin, keV",
+        "counts": "photon counts per bin, normalised to sum 1 over the bins",
+        "counts_per_kev": "counts divided by the bin width, keV^-1",
+        "photon_flux_per_kev": "photon flux density, photons s^-1 cm^-2 keV^-1 (emissivity "
+                               "taken in erg s^-1 cm^-2 sr^-1)",
+        "energy_flux_per_kev": "energy flux density, erg s^-1 cm^-2 keV^-1 (same emissivity)",
+    },
+}
+
+
+def write_table_sidecar(path, table, columns, metadata, overwrite=False):
+    """The JSON beside a CSV table: its columns' meanings and units, and the still's metadata."""
+    document = {"columns": {name: columns.get(name, "") for name in table},
+                "rows": int(len(next(iter(table.values())))),
+                "observing": metadata.get("observing", {}), "scene": metadata.get("scene")}
+    data = (json.dumps(document, indent=1, default=jsonable) + "\n").encode("utf-8")
+    return atomic_write(path, lambda f: f.write(data), overwrite)
+
+
+def write_table_csv(path, table, overwrite=False):
+    """Write a dict of equal-length 1-D arrays as CSV: one row of names, then the numbers.
+
+    No comment line, so that ``pandas.read_csv`` and ``numpy.genfromtxt(names=True)``
+    read it with their default options; meanings and units go in a sidecar JSON
+    (:func:`write_table_sidecar`).
+    """
     names = list(table)
     text = io.StringIO()
-    if header:
-        text.write(header + "\n")
     writer = csv.writer(text, lineterminator="\n")
     writer.writerow(names)
     for row in zip(*(np.asarray(table[n]) for n in names)):
@@ -413,12 +450,12 @@ def _title(metadata):
 def _spectrum_figure(fig, table, metadata):
     ax = fig.add_subplot()
     nu = table["frequency_hz"]
-    for key, label in (("flux_relativistic_jy", "ray-traced (relativistic)"),
-                       ("flux_flat_jy", "flat space (no relativistic effects)")):
-        values = np.where(table[key] > 0, nu * table[key], np.nan)
+    for key, label in (("nufnu_relativistic_erg_s_cm2", "ray-traced (relativistic)"),
+                       ("nufnu_flat_erg_s_cm2", "flat space (no relativistic effects)")):
+        values = np.where(table[key] > 0, table[key], np.nan)
         ax.loglog(nu, values, label=label)
     ax.set_xlabel("frequency nu [Hz]")
-    ax.set_ylabel("nu F_nu [Hz Jy]")
+    ax.set_ylabel("nu F_nu [erg s^-1 cm^-2]")
     ax.set_title(_title(metadata), fontsize=8)
     ax.legend(fontsize=8)
     fig.tight_layout()

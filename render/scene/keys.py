@@ -111,12 +111,22 @@ KEYS = {spec.path: spec for spec in [
     _k("disk.orders", "int", 2, "-", "1 <= orders <= 16",
        "Equatorial crossings recorded per ray (order n counts all earlier crossings).",
        low=1, high=16),
-    _k("emission.law", "choice", "power_law", "-", "power_law, novikov_thorne, profile",
-       "Rest-frame emission law: power_law (r^-index), novikov_thorne (Page–Thorne flux, "
+    _k("emission.law", "choice", "power_law", "-",
+       "power_law, broken_power_law, novikov_thorne, profile",
+       "Rest-frame emission law: power_law (r^-index), broken_power_law (r^-inner_index "
+       "inside break_radius, r^-outer_index outside), novikov_thorne (Page–Thorne flux, "
        "blackbody), profile (CSV table of r, emissivity).",
        choices=tuple(EMISSION_LAWS)),
     _k("emission.index", "float", 3.0, "-", "-10 <= index <= 20",
        "Power-law index q of I_em = r^-q.", low=-10.0, high=20.0),
+    _k("emission.inner_index", "float", 3.0, "-", "-10 <= inner_index <= 20",
+       "broken_power_law: index of I_em = r^-inner_index inside emission.break_radius.",
+       low=-10.0, high=20.0),
+    _k("emission.outer_index", "float", 3.0, "-", "-10 <= outer_index <= 20",
+       "broken_power_law: index outside emission.break_radius (I_em continuous there).",
+       low=-10.0, high=20.0),
+    _k("emission.break_radius", "float", 6.0, "M", "0 < break_radius <= 1e6",
+       "broken_power_law: radius where the index changes.", low=0.0, high=1e6, low_open=True),
     _k("emission.accretion_rate", "float", 0.1, "see accretion_unit", "0 < accretion_rate <= 1e40",
        "Accretion rate of the novikov_thorne disk, in emission.accretion_unit.",
        low=0.0, high=1e40, low_open=True),
@@ -167,6 +177,10 @@ KEYS = {spec.path: spec for spec in [
     _k("observing.line_high", "float", 1.6, "E/E0", "line_low < line_high <= 100",
        "High edge of the line bins in units of the rest energy.", low=0.0, high=100.0,
        low_open=True),
+    _k("observing.sampling_tolerance", "float", 0.002, "relative", "1e-5 <= sampling_tolerance <= 0.1",
+       "spectrum and line (distant observer): the image-plane sampling is doubled until the "
+       "product changes by less than this (relative L1); docs/spectra.md.",
+       low=1e-5, high=0.1),
     _k("sky.backdrop", "choice", "none", "-", "none, stars, image",
        "Background at infinity for a camera: none (black), stars (procedural point sources) or "
        "image (an equirectangular panorama).", choices=BACKDROPS),
