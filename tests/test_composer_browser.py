@@ -27,7 +27,9 @@ CHROMIUM_FLAGS = ("--headless", "--no-sandbox", "--disable-gpu", "--disable-quic
                   "--no-first-run", "--disable-background-networking",
                   "--disable-component-update", "--disable-sync", "--window-size=1280,1400")
 WAIT_SECONDS = 60   # a ceiling for a slow shared machine, not a speed check
-SCENE = "name: trial\nobserver:\n  placement: distant\ntracing:\n  method: auto\n"
+SCENE = ("name: trial\nobserver:\n  placement: distant\n  inclination: 60\n"
+         "  field_of_view: 40\nimage:\n  width: 512\n  height: 512\ndisk:\n"
+         "  outer_radius: 20\ntracing:\n  method: auto\n")   # fixed, not the defaults
 
 
 @pytest.fixture

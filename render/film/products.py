@@ -18,7 +18,7 @@ from ..output.files import atomic_write, write_png
 from ..output.video import (FRAME_PATTERN, VIDEO_EXTRA_MISSING, contact_sheet,
                             video_writer_available, write_gif, write_light_curve_png,
                             write_video)
-from ..scene.keys import KEYS
+from ..scene.keys import KEYFRAME_PLACEMENTS, KEYS
 from ..light.observing import solid_angle_per_area_sr
 from ..units import gravitational_time_s
 from .flash import flash_check, relative_luminance
@@ -91,7 +91,8 @@ def swept_key(plan):
     """``(key and unit, values per frame)`` of the first keyframed key whose value changes, or None."""
     keys = []
     for keyframe in plan.scene["animation.keyframes"]:
-        keys += [k for k in keyframe if k not in ("frame", "interpolation") and k not in keys]
+        keys += [k for k in keyframe
+                 if k not in KEYFRAME_PLACEMENTS and k != "interpolation" and k not in keys]
     for key in keys:
         values = [float(job.scene[key]) for job in plan.jobs]
         if len(set(values)) > 1:
