@@ -188,3 +188,22 @@ def test_api_table_on_a_local_pool_of_two_workers(tmp_path):
                                    atol=1e-6 * direct.max())
     assert summary["points"] == 2
     assert table_grid.table_paths(scene, tmp_path)["table"] == paths["table"]
+
+
+def test_api_table_on_a_dask_cluster(tmp_path):
+    # The same points through a Dask LocalCluster of two worker processes on loopback
+    # (as a real cluster, but local): the table equals a direct computation.
+    from dask.distributed import Client, LocalCluster
+
+    scene = default_scene(**BASE)
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                      dashboard_address=None) as cluster:
+        with Client(cluster) as client:
+            client.wait_for_workers(2, timeout=120)
+        paths, summary = make_table_model(scene, ["observer.inclination=20:30:2"], tmp_path,
+                                          scheduler=cluster.scheduler_address)
+    edges, direct = _direct({"observer.inclination": 30.0})
+    with fits.open(paths["table"]) as hdus:
+        np.testing.assert_allclose(hdus["SPECTRA"].data["INTPSPEC"][1], direct, rtol=1e-6,
+                                   atol=1e-6 * direct.max())
+    assert summary["points"] == 2
