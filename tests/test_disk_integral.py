@@ -139,6 +139,7 @@ def test_broken_power_law_scene_reaches_the_line():
     def mean_energy(inner_index):
         scene = default_scene(**{"image.width": 8, "image.height": 8, "observing.mode": "line",
                                  "observer.placement": "distant",
+                                 "observer.inclination": 30.0, "disk.outer_radius": 20.0,
                                  "emission.law": "broken_power_law",
                                  "emission.inner_index": inner_index,
                                  "emission.outer_index": 3.0, "emission.break_radius": 5.0,

@@ -78,7 +78,10 @@ def test_library_source_never_calls_matplotlib_use():
 
 
 def test_cropped_disk_warns_python_callers(small_scene):
+    # A camera's line sums its pixels, so a field of view that crops the disk must say so
+    # (a distant observer's line samples the disk on a grid of its own and is never cropped).
     scene = small_scene(**{"observing.mode": "line", "observer.field_of_view": 12.0,
+                           "observer.placement": "camera", "observer.distance": 1000.0,
                            "image.width": 16, "image.height": 16, "tracing.method": "auto"})
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")

@@ -135,14 +135,13 @@ def write_visibilities(result, scene, folder, overwrite=False, baselines=None):
               {"visibilities": measured["info"], "scene": scene.document}, overwrite)
     write_table_csv(paths["visibility_profile_csv"],
                     {"rho_glambda": rho / GIGA, "amplitude": amplitude, "cells": count},
-                    overwrite, header=f"# azimuthal mean |V| ({measured['info']['flux_unit']})")
+                    overwrite)
     if "baselines" in measured:
         u, v, vis = measured["baselines"]
         write_table_csv(paths["baselines_csv"],
                         {"u_glambda": u / GIGA, "v_glambda": v / GIGA, "re": vis.real,
                          "im": vis.imag, "amplitude": np.abs(vis),
                          "phase_deg": np.degrees(np.angle(vis))},
-                        overwrite, header=f"# V in {measured['info']['flux_unit']}; "
-                        "u east, v north; phase centre at the image centre")
+                        overwrite)
     result.metadata["visibilities"] = measured["info"]
     return paths
