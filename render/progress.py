@@ -55,8 +55,13 @@ class RayProgress:
             self._bar = None
 
 
-class FrameProgress:
-    """``progress(done, total, result)`` callback of :func:`render.api.render_sequence`."""
+class _CountProgress:
+    """A bar (tqdm.auto: a widget in notebooks) or one line per finished item, with the
+    time left; ``progress(done, total, None)`` starts it (``done`` items already
+    finished by an earlier run), ``progress(done, total, item)`` counts one more."""
+
+    noun = "items"
+    unit = "item"
 
     def __init__(self, quiet=False, stream=None):
         self.stream = stream or sys.stderr
@@ -64,67 +69,21 @@ class FrameProgress:
         self.terminal = _shows_bar(self.stream)
         self._bar = None
         self._started = None
-        self._first_done = None
+        self._first_done = 0
 
-    def __call__(self, done, total, result):
+    def __call__(self, done, total, item):
         if self.quiet:
             return
-        if result is None:  # the start: frames already finished by an earlier run
+        if item is None:
             self._started = time.monotonic()
             self._first_done = done
             if self.terminal:
                 from tqdm.auto import tqdm
 
-                self._bar = tqdm(total=total, initial=done, desc="frames", unit="frame",
+                self._bar = tqdm(total=total, initial=done, desc=self.noun, unit=self.unit,
                                  file=self.stream, dynamic_ncols=True)
             elif done:
-                print(f"resuming: {done}/{total} frames already finished", file=self.stream,
-                      flush=True)
-            return
-        if self._bar is not None:
-            self._bar.update(done - self._bar.n)
-            return
-        elapsed = time.monotonic() - self._started
-        new = done - self._first_done
-        eta = elapsed / new * (total - done) if new else float("nan")
-        print(f"frame {result.index} done ({done}/{total}) in {result.seconds:.2f} s; "
-              f"eta {eta:.0f} s", file=self.stream, flush=True)
-
-    def close(self):
-        if self._bar is not None:
-            self._bar.close()
-            self._bar = None
-
-
-class GridProgress:
-    """``progress(done, total, seconds)`` callback of a table model's grid (:mod:`render.tables.grid`).
-
-    A bar with the time left on a terminal, else one line per point with the
-    estimate; ``seconds`` is None at the start (``done`` points already finished
-    by an earlier run).
-    """
-
-    def __init__(self, quiet=False, stream=None):
-        self.stream = stream or sys.stderr
-        self.quiet = quiet
-        self.terminal = _is_terminal(self.stream)
-        self._bar = None
-        self._started = None
-        self._first_done = 0
-
-    def __call__(self, done, total, seconds):
-        if self.quiet:
-            return
-        if seconds is None:
-            self._started = time.monotonic()
-            self._first_done = done
-            if self.terminal:
-                from tqdm import tqdm
-
-                self._bar = tqdm(total=total, initial=done, desc="grid points", unit="point",
-                                 file=self.stream, dynamic_ncols=True)
-            elif done:
-                print(f"resuming: {done}/{total} grid points already finished",
+                print(f"resuming: {done}/{total} {self.noun} already finished",
                       file=self.stream, flush=True)
             return
         if self._bar is not None:
@@ -133,10 +92,38 @@ class GridProgress:
         elapsed = time.monotonic() - self._started
         new = done - self._first_done
         left = elapsed / new * (total - done) if new else float("nan")
-        print(f"grid point {done}/{total} done in {seconds:.2f} s; about {left:.0f} s left",
-              file=self.stream, flush=True)
+        print(self.line(done, total, item, left), file=self.stream, flush=True)
+
+    def line(self, done, total, item, left):
+        raise NotImplementedError
 
     def close(self):
         if self._bar is not None:
             self._bar.close()
             self._bar = None
+
+
+class FrameProgress(_CountProgress):
+    """``progress(done, total, result)`` callback of :func:`render.api.render_sequence`."""
+
+    noun = "frames"
+    unit = "frame"
+
+    def line(self, done, total, result, left):
+        return (f"frame {result.index} done ({done}/{total}) in {result.seconds:.2f} s; "
+                f"eta {left:.0f} s")
+
+
+class GridProgress(_CountProgress):
+    """``progress(done, total, seconds)`` callback of a table model's grid (:mod:`render.tables.grid`).
+
+    A bar with the time left on a terminal, else one line per point with the
+    estimate; ``seconds`` is None at the start (``done`` points already finished
+    by an earlier run).
+    """
+
+    noun = "grid points"
+    unit = "point"
+
+    def line(self, done, total, seconds, left):
+        return f"grid point {done}/{total} done in {seconds:.2f} s; about {left:.0f} s left"
