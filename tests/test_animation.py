@@ -239,6 +239,7 @@ def _run_until(command, env, frames_seen, stop):
     return status, seen
 
 
+@pytest.mark.slow   # real processes killed mid-film, ~13 s; resume logic also in the corrupt-frame test
 def test_resume_after_ctrl_c_and_kill_renders_only_missing_frames(tmp_path):
     # Ctrl-C, then kill -9, mid-sequence, then rerun: every frame present and intact, none
     # rendered twice.  One worker keeps it quick (the pool's own kill -9 clean-up is in

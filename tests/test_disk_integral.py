@@ -112,6 +112,7 @@ def test_disk_grid_area_of_a_distant_face_on_disk_far_out():
     assert 1.0 <= area / flat < 1.03
 
 
+@pytest.mark.slow   # two converged disk grids, ~6 s
 def test_line_flux_falls_as_the_inverse_square_of_the_distance():
     # F = L / (4 pi D^2) (common practice): twice the distance, a quarter of the flux.
     def flux(distance):

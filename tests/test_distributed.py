@@ -152,6 +152,7 @@ def test_a_huge_worker_count_is_capped_and_said_in_one_line(tmp_path, capsys):
     assert (tmp_path / "out" / "tiny" / "frame_00000.png").is_file()
 
 
+@pytest.mark.slow   # waits out the (shortened) give-up time: about 10 s
 def test_a_cluster_left_without_workers_says_so_and_gives_up(tmp_path):
     # A killed Dask worker left the client waiting silently forever (issue 13): it must
     # warn once that it waits for workers, then stop with one WorkerLostError after the

@@ -217,6 +217,7 @@ def _backward_crossings(a, r_o, theta_o, p, orders):
     return states, solution.y
 
 
+@pytest.mark.slow   # a scipy integration in Boyer-Lindquist coordinates, ~8 s; the deep-ergoregion test stays
 def test_negative_energy_photons_match_an_independent_geodesic_integration():
     # A ZAMO deep in the ergoregion of an a = 0.998 hole (equatorial ergoregion
     # 1.063 M < r < 2 M, MTW 1973 sec. 33.8) sees photons with E = -p_t < 0.  Each ray is

@@ -54,7 +54,11 @@ def _wait_for(condition, process, what, timeout=180.0):
     raise AssertionError(f"the run ended or stalled before {what}: {process.communicate()}")
 
 
-@pytest.mark.parametrize("number,status", [(signal.SIGINT, 130), (signal.SIGTERM, 143)])
+@pytest.mark.parametrize("number,status", [
+    (signal.SIGINT, 130),
+    # SIGTERM takes the same path (render.cli) and is also tested while tracing in
+    # tests/test_edge_cases.py; here it runs with the long checks.
+    pytest.param(signal.SIGTERM, 143, marks=pytest.mark.slow)])
 def test_a_stop_during_the_npz_write_leaves_no_file(tmp_path, number, status):
     # Before the files were published as a set, the PNG stayed without its NPZ.
     marker, out = tmp_path / "marker", tmp_path / "out"
@@ -77,7 +81,7 @@ def _png_scene(path):
 
 def test_concurrent_overwrites_of_one_name_leave_a_set_from_one_scene(tmp_path):
     out = tmp_path / "out"
-    for round_ in range(3):
+    for round_ in range(2):   # the race showed in 3 of 3 rounds before (issue 13)
         runs = [subprocess.Popen(
             [sys.executable, "-m", "render", "still", *SMALL, "--set", "name=twin", "--set",
              f"black_hole.spin={spin}", "--overwrite", "--quiet", "--output-dir", str(out)],

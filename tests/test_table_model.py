@@ -190,6 +190,7 @@ def test_api_table_on_a_local_pool_of_two_workers(tmp_path):
     assert table_grid.table_paths(scene, tmp_path)["table"] == paths["table"]
 
 
+@pytest.mark.slow   # starts a two-process Dask cluster; the local pool's test covers the rest
 def test_api_table_on_a_dask_cluster(tmp_path):
     # The same points through a Dask LocalCluster of two worker processes on loopback
     # (as a real cluster, but local): the table equals a direct computation.
