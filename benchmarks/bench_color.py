@@ -38,7 +38,7 @@ def measure_colour_overhead(size=512, repeat=3):
     from render.light.disk import on_disk, redshift_factor
     from render.light.observing import prepare_observation, shade
     from render.geodesics.tracing import trace_bundle
-    from render.imaging.still import observer_rays, render_still
+    from render.imaging.still import render_still
 
     values = {"image.width": args.size, "image.height": args.size, "black_hole.spin": 0.9,
               "observer.inclination": 60.0, "observer.placement": "distant",
@@ -57,7 +57,7 @@ def measure_colour_overhead(size=512, repeat=3):
         render_still(bolometric)
         renders.append(time.perf_counter() - started)
 
-    alpha, beta, bundle = observer_rays(bolometric)
+    alpha, beta, bundle = bolometric.viewpoint().rays()
     raw = trace_bundle(bundle, bolometric.spin, n_record=2, tolerance=bolometric["tracing.tolerance"],
                        max_steps=bolometric["tracing.max_steps"],
                        max_crossings=bolometric["tracing.max_crossings"])

@@ -309,7 +309,6 @@ def main(argv=None):
 
     import render
     from render.geodesics.tracing import DEFAULT_TOLERANCE
-    from render.imaging.still import observer_rays
 
     if args.skip_startup:
         first_start, cached_starts, sources_changed = None, [], None
@@ -319,7 +318,7 @@ def main(argv=None):
     scene = benchmark_scene()
     tolerance = scene["tracing.tolerance"]
     assert tolerance == DEFAULT_TOLERANCE
-    _, _, bundle = observer_rays(scene)
+    _, _, bundle = scene.viewpoint().rays()
     cores = numba.get_num_threads()
     log(f"warm-up: tracing the {SIZE}x{SIZE} image once ({cores} numba threads)...")
     warm_seconds, _, raw = time_kernel(bundle, 1, tolerance)
