@@ -17,7 +17,7 @@ import numpy as np
 from ..geodesics.tracing import trace
 from ..imaging.still import shining_crossings
 from ..light.display import scene_scalar_pixels
-from ..light.pattern import emission_time, pattern_factor
+from ..light.pattern import pattern_factor, tortoise_radius
 from ..imaging.sensor import finish_still, needs_sensor
 from ..light.observing import prepare_observation, shade
 
@@ -146,15 +146,41 @@ def turned_trace(bundle, raw, angle):
     return dataclasses.replace(bundle, states=states), turned
 
 
+_CROSSINGS_CACHE = {}
+
+
+def _frame_crossings(scene, raw, bundle):
+    """(g, hits, delay - r*_em + r*_cam) of traced rays: what every frame of a film shares.
+
+    The redshift factors, the crossings that shine and the emission time's offset
+    from the frame's clock depend on the rays' radii, constants of motion and fates,
+    which a turn about the spin axis leaves alone (:func:`turned_trace`), and on the
+    disk's extent; they are computed once per trace and disk.  The emission time of a
+    frame is then its coordinate time minus the offset (:func:`render.light.pattern.emission_time`).
+    """
+    camera_radius = None if scene["observer.placement"] == "distant" else scene["observer.distance"]
+    key = (id(raw["r"]), id(bundle.lam), scene.spin, scene.inner_radius, scene["disk.outer_radius"],
+           scene["disk.orders"], scene["disk.surface"], camera_radius)
+    if key not in _CROSSINGS_CACHE:
+        g, hits = shining_crossings(scene, raw, bundle)
+        with np.errstate(invalid="ignore"):
+            offset = np.asarray(raw["delay"], dtype=float) - tortoise_radius(raw["r"], scene.spin)
+        if camera_radius is not None:
+            offset = offset + float(tortoise_radius(camera_radius, scene.spin))
+        _CROSSINGS_CACHE.clear()
+        # The arrays named in the key are kept alive with the entry, so their ids stay theirs.
+        _CROSSINGS_CACHE[key] = (g, hits, offset, raw["r"], bundle.lam)
+    return _CROSSINGS_CACHE[key][:3]
+
+
 def _shade_traced(scene, job, bundle, raw):
     """(observation, shaded) of traced rays, with the pattern at the frame's time."""
 
     spin = scene.spin
-    g, hits = shining_crossings(scene, raw, bundle)
+    g, hits, offset = _frame_crossings(scene, raw, bundle)
     observation = prepare_observation(scene)
     if scene["pattern.shape"] != "none":
-        camera_radius = None if scene["observer.placement"] == "distant" else scene["observer.distance"]
-        t_em = emission_time(job.coordinate_time, raw["delay"], raw["r"], spin, camera_radius)
+        t_em = job.coordinate_time - offset
         factor = pattern_factor(
             scene["pattern.shape"], raw["r"], raw["phi"], t_em, spin,
             radius=scene["pattern.radius"], phase_deg=scene["pattern.phase"],

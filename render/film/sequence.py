@@ -13,6 +13,7 @@ import hashlib
 import json
 import math
 import os
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -32,6 +33,9 @@ __all__ = ["SequencePlan", "plan_sequence", "render_sequence", "render_frames_he
            "prepare_folder", "SequenceResult", "scene_hash", "MANIFEST"]
 
 MANIFEST = "manifest.json"
+# The manifest is rewritten at most this often while frames arrive (and at the end):
+# rewriting it after every frame cost more than a frame of a traced-once film.
+MANIFEST_INTERVAL_S = 1.0
 
 
 # --- the plan ------------------------------------------------------------------------------
@@ -237,7 +241,10 @@ def render_frames_here(jobs):
 
 
 def _record_frame(folder, plan, manifest, result):
-    """Write a rendered frame's PNG, then list it (with its SHA-256) in the manifest."""
+    """Write a rendered frame's PNG, then list it (with its SHA-256) in the manifest's dict.
+
+    The caller writes the manifest file (:func:`_write_manifest`).
+    """
     name = FRAME_PATTERN.format(result.index)
     path = write_png(folder / name, result.pixels, overwrite=True,
                      metadata={"Software": f"nullray {__version__}",
@@ -248,7 +255,6 @@ def _record_frame(folder, plan, manifest, result):
         "file": name, "sha256": _sha256(path), "flux": result.flux,
         "clock": job.clock, "coordinate_time": job.coordinate_time,
         "seconds": result.seconds}
-    _write_manifest(folder, manifest)
 
 
 def render_sequence(scene, output_dir="outputs", *, run_frames=render_frames_here,
@@ -292,11 +298,21 @@ def render_sequence(scene, output_dir="outputs", *, run_frames=render_frames_her
     total = len(plan.jobs)
     if progress is not None:
         progress(len(done), total, None)
-    for result in run_frames(todo):
-        _record_frame(folder, plan, manifest, result)
-        rendered.append(result.index)
-        if progress is not None:
-            progress(len(manifest["frames"]), total, result)
+    written = time.monotonic()
+    try:
+        for result in run_frames(todo):
+            _record_frame(folder, plan, manifest, result)
+            rendered.append(result.index)
+            if time.monotonic() - written >= MANIFEST_INTERVAL_S:
+                _write_manifest(folder, manifest)
+                written = time.monotonic()
+            if progress is not None:
+                progress(len(manifest["frames"]), total, result)
+    finally:
+        # Also on Ctrl-C or an error: every frame written so far is listed, so a rerun
+        # resumes after it.  A frame written but not yet listed (a killed process) is
+        # rendered again.
+        _write_manifest(folder, manifest)
     fluxes = [manifest["frames"][f"{k:05d}"]["flux"] for k in range(len(plan.jobs))]
     paths, flash = {}, {}
     if products:
