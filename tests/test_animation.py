@@ -566,6 +566,12 @@ def test_a_film_that_only_turns_traces_once_and_equals_tracing_each_frame(which,
             observation, shaded = frame._shade_traced(job.scene, job, b, r)
             pixels.append(frame._frame_pixels(job.scene, job, observation, shaded, r, b))
         assert np.array_equal(pixels[0], pixels[1])
+        # The frame as a film renders it: shaded once, only the pattern per frame.
+        assert frame._shades_by_pattern_only(job.scene)
+        made = render_frame(job)
+        assert np.array_equal(made.pixels.reshape(pixels[1].shape), pixels[1])
+        pixel_area = (job.scene["observer.field_of_view"] / job.scene["image.width"]) ** 2
+        assert made.flux == pytest.approx(np.nansum(shaded.intensity) * pixel_area, rel=1e-12)
     assert len(calls) == 1   # the film traced once (the direct traces above bypass it)
 
 
