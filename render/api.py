@@ -17,6 +17,7 @@ import warnings
 from pathlib import Path
 
 from .errors import NullrayWarning, OutputFolderError, SceneError, UsageError
+from .film.frame import shades_once
 from .film.sequence import render_sequence as _render_sequence_here
 from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
@@ -212,7 +213,8 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
         Frames go to ``output_dir/<scene name>/``.
     workers : int or None
         Local processes (1: render in this process; None: every core for a long
-        enough film, :func:`render.parallel.auto_workers`).
+        enough film, :func:`render.parallel.auto_workers`, unless the film is traced
+        and shaded once, :func:`render.film.frame.shades_once`: then 1).
     scheduler : str, optional
         Address of a Dask distributed scheduler (e.g. ``tcp://10.0.0.5:8786``);
         an unreachable one is refused before any file is made.
@@ -237,7 +239,7 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
     try:
         def run_frames(jobs):
             if workers is None:
-                count = auto_workers(len(jobs))
+                count = 1 if shades_once(jobs) else auto_workers(len(jobs))
             else:
                 count, note = capped_workers(workers, len(jobs))
                 if note and client is None:

@@ -593,3 +593,27 @@ def test_frames_finished_before_an_interruption_are_listed_in_the_manifest(tmp_p
     assert sorted(manifest["frames"]) == ["00000", "00001"]
     rerun = sequence.render_sequence(scene, tmp_path, products=False)
     assert rerun.rendered == [2, 3, 4] and rerun.reused == [0, 1]
+
+
+def test_a_film_traced_and_shaded_once_runs_in_one_process_by_default(tmp_path, monkeypatch):
+    # A pool would trace the film once in each of its processes; its frames cost a pattern
+    # factor each.  A film whose frames need their own traces still gets a pool.
+    import render.api as api
+    from render.film.frame import shades_once
+
+    counts = []
+
+    def recording(jobs, workers=1, client=None):
+        counts.append(workers)
+        return (render_frame(job) for job in jobs)
+
+    monkeypatch.setattr(api, "frame_results", recording)
+    monkeypatch.setattr(api, "auto_workers", lambda frames, cores=None: 2)
+    films = _symmetric_films()
+    assert shades_once(plan_sequence(films["orbiting-camera"]).jobs)
+    api.render_sequence(films["orbiting-camera"], tmp_path, workers=None, products=False)
+    tilting = small(**{"animation.frames": 3, "animation.keyframes": [
+        {"frame": 0, "observer.inclination": 20.0}, {"frame": 2, "observer.inclination": 70.0}]})
+    assert not shades_once(plan_sequence(tilting).jobs)
+    api.render_sequence(tilting, tmp_path, workers=None, products=False)
+    assert counts == [1, 2]

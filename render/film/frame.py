@@ -21,7 +21,7 @@ from ..light.pattern import pattern_factor, tortoise_radius
 from ..imaging.sensor import finish_still, needs_sensor
 from ..light.observing import crossing_weights, order_sum, prepare_observation, shade
 
-__all__ = ["FrameJob", "FrameResult", "render_frame"]
+__all__ = ["FrameJob", "FrameResult", "render_frame", "shades_once"]
 
 
 @dataclass
@@ -190,6 +190,16 @@ def _shades_by_pattern_only(scene):
     """
     return (scene["observing.mode"] == "bolometric" and not needs_sensor(scene)
             and scene["polarisation.model"] == "none")
+
+
+def shades_once(jobs):
+    """Whether every frame of ``jobs`` comes from one trace and one shading (pattern only).
+
+    Such a film costs one trace plus a pattern factor per frame in one process;
+    a pool of processes would trace it once in each of them.
+    """
+    keys = {_symmetry_key(job.scene, job.velocity) for job in jobs}
+    return len(keys) == 1 and all(_shades_by_pattern_only(job.scene) for job in jobs)
 
 
 _WEIGHTS_CACHE = {}
