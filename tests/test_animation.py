@@ -617,3 +617,23 @@ def test_a_film_traced_and_shaded_once_runs_in_one_process_by_default(tmp_path, 
     assert not shades_once(plan_sequence(tilting).jobs)
     api.render_sequence(tilting, tmp_path, workers=None, products=False)
     assert counts == [1, 2]
+
+
+def test_a_film_leaves_the_temporaries_of_a_live_run_alone(tmp_path):
+    # Two runs in one folder: starting (or --overwrite-ing) a film must not delete the
+    # half-written files of a run that is still alive; a dead run's leftovers go.
+    from render.film import sequence
+    from render.guards.runs import run_tag
+
+    scene = small(name="shared", **{"animation.frames": 2})
+    folder = tmp_path / "shared"
+    folder.mkdir()
+    (folder / "manifest.json").write_text("{}")   # a folder of another (unreadable) film
+    dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
+                          capture_output=True, text=True, check=True).stdout.strip()
+    live_part = folder / f".frame_00001.png.{run_tag()}.abc.part"
+    dead_part = folder / f".frame_00001.png.{run_tag().replace(str(os.getpid()), dead)}.abc.part"
+    for path in (live_part, dead_part):
+        path.write_bytes(b"half a frame")
+    sequence.render_sequence(scene, tmp_path, overwrite=True, products=False)
+    assert live_part.exists() and not dead_part.exists()

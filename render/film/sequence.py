@@ -20,7 +20,8 @@ from pathlib import Path
 from ..about import __version__
 from ..errors import SceneError, SequenceFolderError
 from ..light.observing import exposure_white, prepare_observation
-from ..output.files import atomic_write, jsonable, write_png
+from ..guards.runs import is_dead_here
+from ..output.files import atomic_write, jsonable, sweep_dead_temporaries, write_png
 from ..output.video import FRAME_PATTERN
 from ..scene.loader import frame_count, scene_from_dict
 from ..spacetime.motion import MotionError
@@ -171,6 +172,8 @@ def _write_manifest(folder, manifest):
 
 def _clear_sequence(folder):
     for path in folder.iterdir():
+        if path.name.endswith(".part") and not is_dead_here(path.name):
+            continue   # a live run's temporary
         if path.is_file() and (path.name.startswith(("frame_", ".", "sequence", "lightcurve"))
                                or path.name in (MANIFEST, "flash_check.json")):
             path.unlink()
@@ -181,7 +184,7 @@ def prepare_folder(plan, output_dir, overwrite=False):
 
     A manifest of another scene (different hash) is refused unless
     ``overwrite``, which discards its frames: old frames are never mixed in.
-    Leftover temporary files of an interrupted run are removed; a listed frame
+    Leftover temporary files of dead runs are removed (a live run's are left alone); a listed frame
     whose file is missing or whose checksum differs is rendered again.
     """
     folder = Path(output_dir) / plan.scene["name"]
@@ -205,8 +208,9 @@ def prepare_folder(plan, output_dir, overwrite=False):
         raise SequenceFolderError(f"{folder} cannot be created: {exc.strerror or exc}") from None
     if not os.access(folder, os.W_OK | os.X_OK):
         raise SequenceFolderError(f"{folder} is not writable")
-    for stale in folder.glob(".*.part"):
-        stale.unlink()  # temporary files of an interrupted run (atomic writes never finished)
+    # Temporaries of dead runs were swept before (render.output.files.sweep_dead_temporaries);
+    # those of a live run of the same film are its own business.
+    sweep_dead_temporaries(folder)
     if manifest is None:
         manifest = {"program": "nullray", "version": __version__, "scene_hash": plan.hash,
                     "frame_count": len(plan.jobs), "fps": plan.fps,
