@@ -188,7 +188,11 @@ def make_measurement(scene, output_dir="outputs", *, tolerances=None, overwrite=
     measurement = measure_scene(scene, tolerances)
     if on_measured is not None:
         on_measured(measurement)
-    return measurement, write_measurement(measurement, scene, output_dir, overwrite)
+    folder = Path(output_dir)
+    _check_writable_folder(folder)
+    with published_together(folder):   # the report and its overlay, both or neither
+        paths = write_measurement(measurement, scene, output_dir, overwrite)
+    return measurement, paths
 
 
 def _check_writable_folder(folder):
