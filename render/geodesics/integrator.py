@@ -33,21 +33,28 @@ State vector, in the backward (into the past) direction:
     y = (u, du/dsigma, mu, dmu/dsigma, phi, delay)
 where ``delay`` is the regularised coordinate-time delay
     delay = (t_obs - t) - (r*_obs - r*),   dr*/dr = (r^2 + a^2)/Delta,
-finite at infinity (zero at the observer).
+finite at infinity (zero at the observer).  On a radially outgoing leg of the
+backward ray the delay grows like 2 r*, and the kernel carries delay - 2 r*(u)
+there instead (its rate stays bounded out to infinity); it adds 2 r* back
+wherever a delay leaves the kernel.  So every component, the delay included,
+is in the step control.
 
-Stepping is an adaptive Dormand–Prince 5(4) pair (Dormand & Prince 1980;
-Hairer, Norsett & Wanner, Solving ODEs I, sec. II.5).  An equatorial crossing
-(mu = 0) is first bracketed on the cubic Hermite
-interpolant of the accepted step, then refined by Newton iteration on true
-partial Dormand–Prince steps from the start of the step, so the crossing is as
-accurate as an ordinary step (well below 1e-9 M at the default tolerance).
+Stepping is the adaptive Dormand–Prince 8(5,3) method "DOP853" (Hairer,
+Norsett & Wanner, Solving ODEs I, sec. II.10; tableau in
+:mod:`render.geodesics.tableau853`), with Hairer's error norm blending its 5th-
+and 3rd-order estimates.  On these rays it takes about 3 times fewer steps
+than the Dormand–Prince 5(4) pair used before.  An equatorial crossing
+(mu = 0), and the capture or escape radius, are located on the step's
+7th-order dense output (Newton's method on the interpolant); a crossing is
+then recomputed by one true partial step to that point plus one Newton
+correction, so it is as accurate as an ordinary step.
 
 References
 ----------
 Carter (1968), Phys. Rev. 174, 1559.
 Mino (2003), Phys. Rev. D 67, 084027.
 Bardeen (1973), in Black Holes (Les Houches), 215.
-Dormand & Prince (1980), J. Comput. Appl. Math. 6, 19.
+Hairer, Norsett & Wanner (1993), Solving Ordinary Differential Equations I, sec. II.10.
 """
 
 import contextlib
@@ -61,6 +68,7 @@ import numpy as np
 from numba import njit, prange
 
 from . import tableau853 as T
+
 
 @contextlib.contextmanager
 def deferred_interrupts():
@@ -430,6 +438,26 @@ def _record_crossing(y_cross, shift, n_cross, n_record, row, out_r, out_phi, out
 
 
 @njit(cache=True, error_model="numpy")
+def _crossing_state(y, h_cross, spin, lam, eta, sign, leg, k, k_part, tmp, y_cross):
+    """The state where mu = 0, a step ``h_cross`` (found on the dense output) from ``y``.
+
+    The dense output is of order 7, one less than the step: a true partial step
+    of size ``h_cross`` and one Newton correction along f (first order in a shift
+    of ~1e-10 of the step) bring the crossing to the accuracy of an ordinary
+    step.  The delay in ``y_cross`` is the delay itself, whatever the leg.
+    """
+    for i in range(N_STATE):
+        k_part[0, i] = k[0, i]
+    _dop853_step(y, h_cross, spin, lam, eta, sign, leg, k_part, tmp, y_cross, 1.0, 1.0)
+    _derivatives(y_cross, spin, lam, eta, sign, leg, k_part[12])
+    if k_part[12, 2] != 0.0:
+        d_sigma = -y_cross[2] / k_part[12, 2]
+        for i in range(N_STATE):
+            y_cross[i] += d_sigma * k_part[12, i]
+    y_cross[5] += _delay_offset(y_cross[0], spin, leg)
+
+
+@njit(cache=True, error_model="numpy")
 def _trace_one(y0, spin, lam, eta, sign, u_escape, u_capture, rtol, atol, h_initial,
                max_steps, max_crossings, n_record, stop_on_disk, r_in, r_out,
                out_r, out_phi, out_delay, out_inward, row, record_final, out_final):
@@ -446,6 +474,7 @@ def _trace_one(y0, spin, lam, eta, sign, u_escape, u_capture, rtol, atol, h_init
     y_cross = np.empty(N_STATE)
     tmp = np.empty(N_STATE)
     k = np.empty((16, N_STATE))
+    k_part = np.empty((16, N_STATE))
     dense = np.empty((7, N_STATE))
     is_finite = math.isfinite(lam) and math.isfinite(eta)
     for i in range(N_STATE):
@@ -489,8 +518,7 @@ def _trace_one(y0, spin, lam, eta, sign, u_escape, u_capture, rtol, atol, h_init
         if is_crossing:
             s = _dense_root(dense, y, 2, 0.0)
             if s <= s_end:
-                _dense_state(dense, y, s, y_cross)
-                y_cross[5] += _delay_offset(y_cross[0], spin, leg)
+                _crossing_state(y, s * h, spin, lam, eta, sign, leg, k, k_part, tmp, y_cross)
                 shift = pole_shift + (math.pi if turned and y[3] * y_cross[3] < 0.0 else 0.0)
                 r_c = _record_crossing(y_cross, shift, n_cross, n_record, row,
                                        out_r, out_phi, out_delay, out_inward)
@@ -508,18 +536,15 @@ def _trace_one(y0, spin, lam, eta, sign, u_escape, u_capture, rtol, atol, h_init
             if is_captured:
                 return FATE_CAPTURED, n_cross, steps, np.nan, np.nan
             _dense_state(dense, y, s_end, y_cross)
-            phi_e = y_cross[4] + pole_shift
-            if turned and y[3] * y_cross[3] < 0.0:
-                phi_e += math.pi
+            shift = pole_shift + (math.pi if turned and y[3] * y_cross[3] < 0.0 else 0.0)
             theta_end = math.acos(min(1.0, max(-1.0, y_cross[2])))
-            return FATE_ESCAPED, n_cross, steps, theta_end, phi_e % (2.0 * math.pi)
+            return FATE_ESCAPED, n_cross, steps, theta_end, (y_cross[4] + shift) % (2.0 * math.pi)
         if turned:
             pole_shift += math.pi
         if (sign * y_new[1] >= 0.0) != (leg > 0.0):
             # A radial turning point: the delay changes representation.
-            y_new[5] += _delay_offset(y_new[0], spin, leg)
+            y_new[5] += _delay_offset(y_new[0], spin, leg) - _delay_offset(y_new[0], spin, -leg)
             leg = -leg
-            y_new[5] -= _delay_offset(y_new[0], spin, leg)
             _derivatives(y_new, spin, lam, eta, sign, leg, k[12])
         for i in range(N_STATE):
             y[i] = y_new[i]
