@@ -90,6 +90,9 @@ MATCH_FACTOR = 2.0
 MINO_TIME_SPAN = 100.0
 
 REPO = Path(__file__).resolve().parent.parent
+# Measure this checkout's render/, not whichever copy is installed in the environment
+# (run from benchmarks/, Python would otherwise import the installed package).
+sys.path.insert(0, str(REPO))
 STARTUP_CODE = ("import time, render; "
                 "render.trace_points([1.0], [1.0], spin=0.9, inclination_deg=60); "
                 "print(repr(time.time()))")
@@ -108,7 +111,9 @@ def source_stamp():
 
 def time_startup(cache_dir):
     """Seconds from launching a fresh interpreter to the end of its first traced ray."""
-    env = dict(os.environ, NUMBA_CACHE_DIR=str(cache_dir))
+    env = dict(os.environ, NUMBA_CACHE_DIR=str(cache_dir),
+               PYTHONPATH=os.pathsep.join(filter(None, [str(REPO),
+                                                       os.environ.get("PYTHONPATH")])))
     launched = time.time()
     out = subprocess.run([sys.executable, "-c", STARTUP_CODE], env=env, cwd=str(cache_dir),
                          capture_output=True, text=True, check=True)
