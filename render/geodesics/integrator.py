@@ -450,8 +450,10 @@ def _crossing_state(y, h_cross, spin, lam, eta, sign, leg, k, k_part, tmp, y_cro
         k_part[0, i] = k[0, i]
     _dop853_step(y, h_cross, spin, lam, eta, sign, leg, k_part, tmp, y_cross, 1.0, 1.0)
     _derivatives(y_cross, spin, lam, eta, sign, leg, k_part[12])
-    if k_part[12, 2] != 0.0:
-        d_sigma = -y_cross[2] / k_part[12, 2]
+    d_sigma = -y_cross[2] / k_part[12, 2] if k_part[12, 2] != 0.0 else 0.0
+    # Only a small shift is a Newton correction; a ray grazing the plane (mu' ~ 0)
+    # keeps the partial step's state.
+    if abs(d_sigma) <= 1e-3 * abs(h_cross):
         for i in range(N_STATE):
             y_cross[i] += d_sigma * k_part[12, i]
     y_cross[5] += _delay_offset(y_cross[0], spin, leg)
