@@ -14,7 +14,10 @@ throughput
     followed to its end (escape or capture), as a transparent-disk render does.
     Reported as rays per second and rays per second per numba thread
     (``numba.get_num_threads()``), from the median of the timed runs (the
-    fastest run is given too).  Rays per CPU-second (process CPU time summed
+    fastest run is given too).  The same image is then traced with 1 and with
+    2 numba threads in interleaved runs (``by_threads``: rays per second, per
+    second per thread, and per CPU-second, for each count;
+    ``single_thread_rays_per_second``; ``two_threads_not_slower``).  Rays per CPU-second (process CPU time summed
     over all threads) are given beside every wall-clock rate: on a machine
     shared with other work they vary much less than wall-clock rates.
 start-up
@@ -63,6 +66,8 @@ from pathlib import Path
 import numpy as np
 
 TARGET_RAYS_PER_SECOND_PER_CORE = 50_000.0
+# Issue 14: one thread, rays per CPU-second of that thread's process.
+TARGET_SINGLE_THREAD_RAYS_PER_CPU_SECOND = 100_000.0
 TARGET_SPEEDUP_VS_SCIPY = 300.0
 TARGET_CACHED_STARTUP_SECONDS = 3.0
 
@@ -85,6 +90,9 @@ MATCH_FACTOR = 2.0
 MINO_TIME_SPAN = 100.0
 
 REPO = Path(__file__).resolve().parent.parent
+# Measure this checkout's render/, not whichever copy is installed in the environment
+# (run from benchmarks/, Python would otherwise import the installed package).
+sys.path.insert(0, str(REPO))
 STARTUP_CODE = ("import time, render; "
                 "render.trace_points([1.0], [1.0], spin=0.9, inclination_deg=60); "
                 "print(repr(time.time()))")
@@ -103,7 +111,9 @@ def source_stamp():
 
 def time_startup(cache_dir):
     """Seconds from launching a fresh interpreter to the end of its first traced ray."""
-    env = dict(os.environ, NUMBA_CACHE_DIR=str(cache_dir))
+    env = dict(os.environ, NUMBA_CACHE_DIR=str(cache_dir),
+               PYTHONPATH=os.pathsep.join(filter(None, [str(REPO),
+                                                       os.environ.get("PYTHONPATH")])))
     launched = time.time()
     out = subprocess.run([sys.executable, "-c", STARTUP_CODE], env=env, cwd=str(cache_dir),
                          capture_output=True, text=True, check=True)
@@ -143,6 +153,40 @@ def subset(bundle, index):
     from render.camera.observers import RayBundle
     return RayBundle(bundle.states[index], bundle.lam[index], bundle.eta[index],
                      bundle.energy_ratio[index], bundle.u_escape)
+
+
+def time_thread_counts(bundle, repeats, tolerance, counts):
+    """Interleaved timed runs of ``bundle`` with each numba thread count in ``counts``.
+
+    Returns {threads: {"seconds": [...], "cpu_seconds": [...]}}; the counts take
+    turns within every repeat, so a change of load on the machine hits them alike.
+    """
+    import numba
+
+    previous = numba.get_num_threads()
+    runs = {n: {"seconds": [], "cpu_seconds": []} for n in counts}
+    try:
+        for _ in range(repeats):
+            for n in counts:
+                numba.set_num_threads(n)
+                wall, cpu, _ = time_kernel(bundle, 1, tolerance)
+                runs[n]["seconds"].append(wall[0])
+                runs[n]["cpu_seconds"].append(cpu[0])
+    finally:
+        numba.set_num_threads(previous)
+    return runs
+
+
+def thread_figures(n_rays, runs):
+    """Per thread count: rays/s, rays/s per core (per thread), rays per CPU-second (medians)."""
+    out = {}
+    for n, run in runs.items():
+        rate = n_rays / float(np.median(run["seconds"]))
+        out[str(n)] = {"rays_per_second": rate, "rays_per_second_per_core": rate / n,
+                       "rays_per_cpu_second": n_rays / float(np.median(run["cpu_seconds"])),
+                       "seconds": [round(s, 4) for s in run["seconds"]],
+                       "cpu_seconds": [round(s, 4) for s in run["cpu_seconds"]]}
+    return out
 
 
 def time_kernel(bundle, repeats, tolerance):
@@ -328,6 +372,11 @@ def main(argv=None):
     rate = n_rays / float(np.median(seconds))
     cpu_rate = n_rays / float(np.median(cpu_seconds))
     log(f"kernel: {rate:.0f} rays/s ({rate / cores:.0f} per core), runs {np.round(seconds, 3)}")
+    counts = sorted({1, min(2, numba.config.NUMBA_NUM_THREADS)})
+    log(f"thread counts {counts}, interleaved, {args.repeats} runs each...")
+    by_threads = thread_figures(n_rays, time_thread_counts(bundle, args.repeats, tolerance,
+                                                           counts))
+    log(f"by threads: { {n: round(f['rays_per_second']) for n, f in by_threads.items()} }")
     kernel_maxrss_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
 
     # The comparison sample: uniform pixels (their mix of rays sets the speed),
@@ -405,6 +454,11 @@ def main(argv=None):
         "rays_per_cpu_second": cpu_rate,
         "kernel_cpu_seconds": [round(s, 4) for s in cpu_seconds],
         "steps_mean": float(raw["steps"].mean()),
+        "single_thread_rays_per_second": by_threads["1"]["rays_per_second"],
+        "by_threads": by_threads,
+        "two_threads_not_slower": (bool(by_threads["2"]["rays_per_second"]
+                                        >= by_threads["1"]["rays_per_second"])
+                                   if "2" in by_threads else None),
         "startup_seconds_first_compile": first_start,
         "startup_seconds_cached": cached_median,
         "startup_seconds_cached_runs": [round(s, 3) for s in cached_starts],
@@ -428,6 +482,7 @@ def main(argv=None):
         "speedup_vs_scipy_per_cpu_second": cpu_speedup,
         "targets": {
             "rays_per_second_per_core": TARGET_RAYS_PER_SECOND_PER_CORE,
+            "single_thread_rays_per_cpu_second": TARGET_SINGLE_THREAD_RAYS_PER_CPU_SECOND,
             "speedup_vs_scipy_per_core": TARGET_SPEEDUP_VS_SCIPY,
             "startup_seconds_cached": TARGET_CACHED_STARTUP_SECONDS,
         },
@@ -436,6 +491,9 @@ def main(argv=None):
             "speedup_vs_scipy_per_core": bool(speedup is not None
                                               and speedup >= TARGET_SPEEDUP_VS_SCIPY),
             "rays_per_cpu_second": bool(cpu_rate >= TARGET_RAYS_PER_SECOND_PER_CORE),
+            "single_thread_rays_per_cpu_second": bool(
+                by_threads["1"]["rays_per_cpu_second"]
+                >= TARGET_SINGLE_THREAD_RAYS_PER_CPU_SECOND),
             "speedup_vs_scipy_per_cpu_second": bool(cpu_speedup is not None
                                                     and cpu_speedup >= TARGET_SPEEDUP_VS_SCIPY),
             "startup_seconds_cached": bool(cached_median is not None

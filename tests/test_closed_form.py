@@ -193,10 +193,10 @@ def _phase(x):
 
 # (name, order or None, tolerance, kind) of each comparison with the integrator:
 # r and g are the accuracy target of the closed form (1e-8 relative); phi to 1e-8 rad;
-# the delay to 1e-7 relative within 100 M (the integrator leaves the delay out of its
-# error control, a passive quadrature); the escape direction as an arc on the sky,
-# sin(theta_end) dphi_end, to 1e-7 rad (the integrator takes it from the cubic Hermite
-# interpolant of its last step, good to a few 1e-8 even at tolerance 1e-14).
+# the delay to 1e-7 relative within 100 M (the check was written when the integrator
+# left the delay out of its error control); the escape direction as an arc on the sky,
+# sin(theta_end) dphi_end, to 1e-7 rad (the integrator takes it from an interpolant of
+# its last step).
 _CHECKS = [("r", 0, 1e-8, "relative"), ("r", 1, 1e-8, "relative"),
            ("g", 0, 1e-8, "relative"), ("g", 1, 1e-8, "relative"),
            ("phi", 0, 1e-8, "angle"), ("phi", 1, 1e-8, "angle"),

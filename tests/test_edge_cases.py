@@ -65,8 +65,10 @@ def test_crossing_and_step_caps_end_grazing_rays_as_unresolved():
                           max_orders=1, max_crossings=4)
     # From delta ~1e-4 on these rays cross >= 4 times (previous test): all hit the cap.
     assert np.all(capped["fate"] == "unresolved") and np.all(capped["n_crossings"] == 4)
+    # The 8th-order stepper needs about 30 steps for the least grazing of these rays
+    # to escape; 25 steps is short of that for every one of them.
     stepped = trace_points(alpha, np.zeros(alpha.size), spin=0.0, inclination_deg=0.0,
-                           max_orders=1, max_steps=100)
+                           max_orders=1, max_steps=25)
     assert np.all(stepped["fate"] == "unresolved")
 
 

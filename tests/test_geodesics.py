@@ -376,3 +376,34 @@ def test_independent_integration_start_radius_is_far_enough():
         found = np.isfinite(phi_near)
         assert np.allclose(np.angle(np.exp(1j * (phi_near[found] - phi_far[found]))), 0.0,
                            atol=1e-8)
+
+
+# --- The integrator's tableau -------------------------------------------------------------
+
+def _tableau853():
+    """(A, b) of the DOP853 tableau as dense float arrays (stages 0-11 and the weights)."""
+    from render.geodesics import tableau853 as tableau
+
+    a = np.zeros((16, 16))
+    b = np.zeros(12)
+    for name, value in vars(tableau).items():
+        if name.startswith("A") and "_" in name:
+            row, col = map(int, name[1:].split("_"))
+            a[row, col] = value
+        elif name[0] == "B" and name[1:].isdigit():
+            b[int(name[1:])] = value
+    return a, b
+
+
+def test_dop853_weights_meet_the_quadrature_order_conditions():
+    # Runge–Kutta order conditions (Hairer, Norsett & Wanner, Solving ODEs I, sec. II.2):
+    # an order-8 method integrates t^(k-1) exactly, sum_i b_i c_i^(k-1) = 1/k for k = 1..8,
+    # with the nodes c_i = sum_j a_ij; and stage 12 (f at the new point) has c = 1.
+    # 1e-14: the decimal coefficients are correctly rounded doubles, sums of ~12 terms.
+    a, b = _tableau853()
+    c = a.sum(axis=1)
+    for k in range(1, 9):
+        assert np.dot(b, c[:12] ** (k - 1)) == pytest.approx(1.0 / k, abs=1e-14), k
+    assert np.allclose(a[12, :12], b, rtol=0, atol=0) and c[12] == pytest.approx(1.0, abs=1e-14)
+    # The bushy-tree condition of order 3 (sum b_i a_ij c_j = 1/6) involves the stages too.
+    assert np.dot(b, a[:12, :12] @ c[:12]) == pytest.approx(1.0 / 6.0, abs=1e-14)

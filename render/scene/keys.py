@@ -203,7 +203,7 @@ KEYS = {spec.path: spec for spec in [
        "observer only; docs/closed_form.md).",
        choices=METHODS),
     _k("tracing.tolerance", "float", 1e-9, "-", "1e-14 <= tolerance <= 1e-3",
-       "Relative tolerance of the adaptive Dormand–Prince 5(4) step control.",
+       "Relative tolerance of the adaptive Dormand–Prince 8(5,3) step control.",
        low=1e-14, high=1e-3),
     _k("tracing.max_steps", "int", 100000, "-", "100 <= max_steps <= 10000000",
        "Step cap per ray; a ray that reaches it gets the fate 'unresolved'.",
