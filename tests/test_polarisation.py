@@ -284,33 +284,54 @@ def test_constant_polarisation_keeps_its_degree_per_crossing(small_scene):
     assert np.allclose(np.hypot(q, u), 0.3 * i, atol=1e-12 * i.max())
 
 
-def _polarised_spectrum(small_scene, **values):
+def _polarised_spectrum(small_scene, is_result=False, **values):
     """The spectrum table of a distant observer (its disk grid) with polarisation."""
     base = {"image.width": 8, "image.height": 8, "emission.law": "novikov_thorne",
             "observing.mode": "spectrum", "observing.spectrum_points": 7,
             "polarisation.model": "electron_scattering", "output.npz": False}
     base.update(values)
     result = render_still(small_scene(**base))
+    if is_result:
+        return result
     return result.tables["spectrum"], result.metadata["observing"]
 
 
-def test_spectrum_polarisation_comes_from_the_disk_grid(small_scene):
+POLARISED_COLUMNS = ("stokes_q_jy", "stokes_u_jy", "polarised_degree", "polarisation_angle_deg")
+
+
+def test_spectrum_polarisation_comes_from_the_disk_grid(small_scene, tmp_path):
     # The disk grid (render.light.disk_integral) ignores the picture: the same columns at
     # two picture sizes and fields of view, exactly (common practice: an integral over
     # the disk may not depend on how its picture is framed).
+    from astropy.io import fits
+
+    from render.output.files import write_still
+    from render.output.products import write_products
+
     values = {"black_hole.spin": 0.9, "observer.inclination": 70.0,
               "observing.spectrum_low": 1e15, "observing.spectrum_high": 1e18,
               "observing.sampling_tolerance": 0.01}
-    one, info = _polarised_spectrum(small_scene, **values)
+    result = _polarised_spectrum(small_scene, True, **values, **{
+        "output.npz": True, "output.fits": True})
+    one, info = result.tables["spectrum"], result.metadata["observing"]
     two, _ = _polarised_spectrum(small_scene, **values, **{
         "image.width": 12, "image.height": 12, "observer.field_of_view": 25.0})
     assert info["sampling"].startswith("disk grid") and info["disk_grid"]["converged"]
     assert not info["warnings"]
-    for name in ("flux_relativistic_jy", "stokes_q_jy", "stokes_u_jy", "polarised_degree",
-                 "polarisation_angle_deg"):
+    for name in ("flux_relativistic_jy",) + POLARISED_COLUMNS:
         assert np.array_equal(one[name], two[name]), name
     # Chandrasekhar's degree never exceeds 11.7 % and orders do not add degree.
     assert np.all((one["polarised_degree"] > 0.0) & (one["polarised_degree"] < 0.1172))
+    # The CSV, NPZ and FITS files carry the columns (common practice: self-describing).
+    paths = write_still(result, tmp_path) | write_products(result, tmp_path)
+    table = np.genfromtxt(paths["spectrum_csv"], delimiter=",", names=True)
+    with np.load(paths["npz"]) as data, fits.open(paths["fits"]) as hdus:
+        for name in POLARISED_COLUMNS:
+            assert np.allclose(table[name], one[name], rtol=1e-9)   # 10 digits in the CSV
+            assert np.array_equal(data[f"spectrum_{name}"], one[name])
+            assert np.array_equal(hdus["SPECTRUM"].data[name.upper()], one[name])
+        assert hdus["SPECTRUM"].header["POLCONV"] == "IAU"
+        assert hdus["SPECTRUM"].columns["STOKES_Q_JY"].unit == "Jy"
 
 
 def test_face_on_schwarzschild_spectrum_has_no_net_polarisation(small_scene):
