@@ -207,6 +207,56 @@ def test_flat_space_limit_keeps_the_emitted_angle(inclination, chi_deg):
         assert np.max(np.abs(folded)) < math.degrees(1e-3)
 
 
+def _rest_frame_cross(g, u, left, right):
+    """(left x right)^a in the rest frame of u: eps_{dabc} u^d left^b right^c, index raised.
+
+    eps_{t r theta phi} = +sqrt(-det g), so that e_r x e_theta = e_phi (common practice).
+    """
+    root = math.sqrt(-np.linalg.det(g))
+    lower = np.array([root * np.linalg.det(np.array([u, basis, left, right]))
+                      for basis in np.eye(4)])
+    return np.linalg.solve(g, lower)
+
+
+@pytest.mark.parametrize("spin", [0.0, 0.9])
+def test_emitted_kappa_matches_a_frame_built_from_the_metric(spin):
+    # Independent construction (Misner, Thorne & Wheeler 1973, sec. 22.5; Bardeen, Press &
+    # Teukolsky 1972 for the Keplerian Omega): the gas's 4-velocity from the metric, the
+    # photon's direction n in its rest frame, f_par = n x e_theta and f_perp = n x f_par by
+    # the Levi-Civita tensor, and kappa of cos(chi) f_par + sin(chi) f_perp from the
+    # Walker–Penrose formula (itself checked against parallel transport above).  Both
+    # are unit vectors, so kappa agrees up to the sign of f; 1e-9 covers rounding.
+    rng = np.random.default_rng(7)
+    checked = 0
+    while checked < 12:
+        r, lam, eta = rng.uniform(2.5, 15.0), rng.uniform(-7.0, 5.0), rng.uniform(0.0, 30.0)
+        delta = r * r - 2 * r + spin ** 2
+        big_r = (r * r + spin ** 2 - spin * lam) ** 2 - delta * (eta + (lam - spin) ** 2)
+        if big_r <= 0.0 or r < 3.0 + 3.0 * (spin == 0.0):   # outside the ISCO, R > 0
+            continue
+        sign_r, sign_theta = rng.choice([-1.0, 1.0], 2)
+        chi = rng.uniform(-1.5, 1.5)
+        g = _kerr_metric(np.array([0.0, r, math.pi / 2, 0.0]), spin)
+        omega = 1.0 / (r ** 1.5 + spin)
+        u = np.array([1.0, 0.0, 0.0, omega])
+        u /= math.sqrt(-(u @ g @ u))
+        k = np.linalg.solve(g, np.array([-1.0, sign_r * math.sqrt(big_r) / delta,
+                                         sign_theta * math.sqrt(eta), lam]))
+        energy = -(k @ g @ u)
+        n = k / energy - u
+        normal = np.array([0.0, 0.0, 1.0 / r, 0.0])
+        f_par = _rest_frame_cross(g, u, n, normal)
+        f_par /= math.sqrt(f_par @ g @ f_par)
+        f_perp = _rest_frame_cross(g, u, n, f_par)
+        f = math.cos(chi) * f_par + math.sin(chi) * f_perp
+        expected = np.array(walker_penrose(k, f, r, 0.0, 1.0, spin))
+        got = np.array([v[0, 0] for v in emitted_kappa(
+            np.array([[r]]), np.array([lam]), np.array([eta]), spin, sign_r, sign_theta, chi)])
+        sign = 1.0 if expected @ got > 0 else -1.0
+        assert np.allclose(sign * got, expected, rtol=1e-9, atol=1e-9 * np.abs(expected).max())
+        checked += 1
+
+
 def test_iau_angle_convention():
     # IAU (1974): from north (up) through east (left); E along the horizontal is 90 deg.
     assert np.degrees(evpa_from_screen(1.0, 0.0)) == pytest.approx(90.0)

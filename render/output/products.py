@@ -33,7 +33,9 @@ extensions hold the others (``FLUXPIX``, Jy per pixel; ``REDSHIFT``, g of the
 first crossing), and a binary table ``SCENE`` holds the scene as YAML, one
 row per line; the spectrum and line modes add their table as a binary table
 ``SPECTRUM`` or ``LINE`` (one row per bin, the CSV's columns with their units;
-a polarised spectrum's Stokes Q, U, degree and IAU angle among them).  FITS rows run upwards, so the arrays are flipped vertically.  The sky axes are ``RA---TAN`` / ``DEC--TAN`` with CRVAL = 0,
+a polarised spectrum's Stokes Q, U, degree and IAU angle among them).  FITS
+rows run upwards, so the arrays are flipped vertically.  The sky axes are
+``RA---TAN`` / ``DEC--TAN`` with CRVAL = 0,
 CRPIX at the image centre and CDELT1 = -pixel scale (east to the left, the
 FITS habit), CDELT2 = +pixel scale, in degrees; +x of the image is the
 Bardeen alpha axis.  Header cards: BUNIT (a FITS unit string astropy reads,
