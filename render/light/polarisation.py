@@ -472,8 +472,8 @@ def crossing_stokes(spin, inclination_deg, roll_deg, polarisation, r, inward, bu
     """
     shape = np.shape(r)
     table, chi = _emission_table(polarisation)
-    out = {name: np.zeros(shape) for name in ("stokes_i_order", "stokes_q_order",
-                                              "stokes_u_order")}
+    # Orders first in memory: the still's per-order maps (orders, H, W) are then views.
+    per_order = np.zeros((3, shape[1], shape[0]))
     totals = np.empty((5, shape[0]))
     roll = math.radians(roll_deg)
     arrays = (np.ascontiguousarray(r, dtype=float), np.ascontiguousarray(hits, dtype=np.bool_),
@@ -486,12 +486,13 @@ def crossing_stokes(spin, inclination_deg, roll_deg, polarisation, r, inward, bu
               np.ascontiguousarray(mu, dtype=float), np.ascontiguousarray(intensity, dtype=float),
               float(spin), float(spin) * math.sin(math.radians(inclination_deg)), math.cos(roll),
               math.sin(roll), np.empty((0, 4)) if screen is None else screen, table,
-              math.cos(chi), math.sin(chi), out["stokes_i_order"], out["stokes_q_order"],
-              out["stokes_u_order"], totals)
+              math.cos(chi), math.sin(chi), per_order, totals)
     if shape[0] <= STOKES_BLOCK:
         _stokes_kernel(0, shape[0], *arrays)
     else:
         _stokes_blocks(*arrays)
+    out = {name: per_order[k].T for k, name in enumerate(("stokes_i_order", "stokes_q_order",
+                                                          "stokes_u_order"))}
     for row, name in enumerate(("stokes_i", "stokes_q", "stokes_u", "polarised_degree",
                                 "polarisation_angle")):
         out[name] = totals[row]
@@ -527,26 +528,27 @@ STOKES_BLOCK = 1 << 17
 
 @njit(cache=True, parallel=True)
 def _stokes_blocks(r, hits, inward, lam, eta, states, alpha, beta, mu, intensity, a, a_sin_i,
-                   cos_roll, sin_roll, screen, table, cos_chi, sin_chi, i_out, q_out, u_out,
-                   totals):
+                   cos_roll, sin_roll, screen, table, cos_chi, sin_chi, per_order, totals):
     """:func:`_stokes_kernel` over blocks of STOKES_BLOCK rays, in parallel."""
     n_rays = r.shape[0]
     for b in prange((n_rays + STOKES_BLOCK - 1) // STOKES_BLOCK):
         _stokes_kernel(b * STOKES_BLOCK, min((b + 1) * STOKES_BLOCK, n_rays), r, hits, inward,
                        lam, eta, states, alpha, beta, mu, intensity, a, a_sin_i, cos_roll,
-                       sin_roll, screen, table, cos_chi, sin_chi, i_out, q_out, u_out, totals)
+                       sin_roll, screen, table, cos_chi, sin_chi, per_order, totals)
 
 
 @njit(cache=True)
 def _stokes_kernel(start, stop, r, hits, inward, lam, eta, states, alpha, beta, mu, intensity,
-                   a, a_sin_i, cos_roll, sin_roll, screen, table, cos_chi, sin_chi, i_out, q_out,
-                   u_out, totals):
+                   a, a_sin_i, cos_roll, sin_roll, screen, table, cos_chi, sin_chi, per_order,
+                   totals):
     """Rays ``start:stop``, per crossing that shines: p(mu), kappa, the E-vector, I, Q, U.
 
     The photon's signs at crossing j are those of :func:`crossing_kappa_signs`.
     The E-vector (E_x, E_y) along the image's right and up gives
-    Q + iU = p I (E_y - i E_x)^2 / |E|^2 (EVPA = atan2(-E_x, E_y)).  ``totals``
-    rows: I, Q, U summed over orders, the degree and the angle (deg) of the sums.
+    Q + iU = p I (E_y - i E_x)^2 / |E|^2 (EVPA = atan2(-E_x, E_y)).
+    ``per_order`` (3, orders, N): I, Q, U of each crossing (left as they are where
+    nothing shines: zeros); ``totals`` rows: I, Q, U summed over orders, the degree
+    and the angle (deg) of the sums.
     """
     n_orders = r.shape[1]
     is_camera = screen.shape[0] > 0
@@ -558,7 +560,7 @@ def _stokes_kernel(start, stop, r, hits, inward, lam, eta, states, alpha, beta, 
             if not hits[n, j] or not (intensity[n, j] == intensity[n, j]):
                 continue
             value = intensity[n, j]
-            i_out[n, j] = value
+            per_order[0, j, n] = value
             i_sum += value
             p = _tabled_degree(table, mu[n, j])
             if not (p != 0.0 and p == p):
@@ -579,10 +581,11 @@ def _stokes_kernel(start, stop, r, hits, inward, lam, eta, states, alpha, beta, 
             if not size > 0.0:
                 continue   # along the normal: no direction parallel to the surface
             scale = p * value / size
-            q_out[n, j] = scale * (e_y * e_y - e_x * e_x)
-            u_out[n, j] = -2.0 * scale * e_x * e_y
-            q_sum += q_out[n, j]
-            u_sum += u_out[n, j]
+            q = scale * (e_y * e_y - e_x * e_x)
+            u = -2.0 * scale * e_x * e_y
+            per_order[1, j, n], per_order[2, j, n] = q, u
+            q_sum += q
+            u_sum += u
         polarised = math.hypot(q_sum, u_sum)
         totals[0, n], totals[1, n], totals[2, n] = i_sum, q_sum, u_sum
         totals[3, n] = polarised / i_sum if i_sum > 0.0 else np.nan
