@@ -355,6 +355,7 @@ def test_spectrum_polarisation_comes_from_the_disk_grid(small_scene, tmp_path):
     # the disk may not depend on how its picture is framed).
     from astropy.io import fits
 
+    from render.output.figures import read_still
     from render.output.files import write_still
     from render.output.products import write_products
 
@@ -382,6 +383,8 @@ def test_spectrum_polarisation_comes_from_the_disk_grid(small_scene, tmp_path):
             assert np.array_equal(hdus["SPECTRUM"].data[name.upper()], one[name])
         assert hdus["SPECTRUM"].header["POLCONV"] == "IAU"
         assert hdus["SPECTRUM"].columns["STOKES_Q_JY"].unit == "Jy"
+    assert np.array_equal(read_still(paths["npz"]).tables["spectrum"]["stokes_u_jy"],
+                          one["stokes_u_jy"])   # and the NPZ reads back as a still
 
 
 def test_face_on_schwarzschild_spectrum_has_no_net_polarisation(small_scene):
