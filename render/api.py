@@ -17,6 +17,7 @@ import warnings
 from pathlib import Path
 
 from .errors import NullrayWarning, OutputFolderError, SceneError, UsageError
+from .film.frame import shades_once
 from .film.sequence import render_sequence as _render_sequence_here
 from .imaging.sensor import needs_sensor, prepare_sky
 from .imaging.still import render_still as _render_still_here
@@ -187,7 +188,11 @@ def make_measurement(scene, output_dir="outputs", *, tolerances=None, overwrite=
     measurement = measure_scene(scene, tolerances)
     if on_measured is not None:
         on_measured(measurement)
-    return measurement, write_measurement(measurement, scene, output_dir, overwrite)
+    folder = Path(output_dir)
+    _check_writable_folder(folder)
+    with published_together(folder):   # the report and its overlay, both or neither
+        paths = write_measurement(measurement, scene, output_dir, overwrite)
+    return measurement, paths
 
 
 def _check_writable_folder(folder):
@@ -212,7 +217,8 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
         Frames go to ``output_dir/<scene name>/``.
     workers : int or None
         Local processes (1: render in this process; None: every core for a long
-        enough film, :func:`render.parallel.auto_workers`).
+        enough film, :func:`render.parallel.auto_workers`, unless the film is traced
+        and shaded once, :func:`render.film.frame.shades_once`: then 1).
     scheduler : str, optional
         Address of a Dask distributed scheduler (e.g. ``tcp://10.0.0.5:8786``);
         an unreachable one is refused before any file is made.
@@ -237,7 +243,7 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
     try:
         def run_frames(jobs):
             if workers is None:
-                count = auto_workers(len(jobs))
+                count = 1 if shades_once(jobs) else auto_workers(len(jobs))
             else:
                 count, note = capped_workers(workers, len(jobs))
                 if note and client is None:

@@ -56,7 +56,8 @@ def _parser():
     _add_common_options(sequence)
     sequence.add_argument("--workers", type=int, default=None, metavar="N",
                           help="local processes rendering frames (default: one per core "
-                               "when 8 or more frames are left, else 1)")
+                               "when 8 or more frames are left, else 1; 1 when the film "
+                               "is traced and shaded once)")
     sequence.add_argument("--scheduler", metavar="ADDRESS",
                           help="Dask distributed scheduler, e.g. tcp://10.0.0.5:8786")
     sequence.add_argument("--quiet", action="store_true", help="print nothing on success")

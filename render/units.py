@@ -5,6 +5,8 @@ Constants come from astropy.constants and astropy.units (imported lazily: they
 cost about a second of start-up, and most renders never need them).
 """
 
+import functools
+
 # Units of a reported angular pixel scale: microarcseconds or milliarcseconds.
 ANGLE_UNITS = ("uas", "mas")
 
@@ -15,11 +17,19 @@ __all__ = [
 ]
 
 
-def _astropy():
+@functools.lru_cache(maxsize=None)
+def _per_solar_mass():
+    """(GM_sun/c^2 in cm, GM_sun/c^3 in s, one parsec in cm, microarcseconds per radian).
+
+    Taken from astropy once per process: its unit arithmetic costs about 8 ms a call,
+    which a film paid on every frame.
+    """
     import astropy.constants as const
     import astropy.units as u
 
-    return const, u
+    length = (const.G * const.M_sun / const.c ** 2).to(u.cm).value
+    duration = (const.G * const.M_sun / const.c ** 3).to(u.s).value
+    return float(length), float(duration), float(u.pc.to(u.cm)), float(u.rad.to(u.uas))
 
 
 def gravitational_radius_cm(mass_msun):
@@ -30,14 +40,12 @@ def gravitational_radius_cm(mass_msun):
     >>> round(gravitational_radius_cm(1.0) / 1e5, 3)   # km
     1.477
     """
-    const, u = _astropy()
-    return float((const.G * mass_msun * const.M_sun / const.c ** 2).to(u.cm).value)
+    return float(mass_msun) * _per_solar_mass()[0]
 
 
 def gravitational_time_s(mass_msun):
     """GM/c^3 in seconds for a mass in solar masses."""
-    const, u = _astropy()
-    return float((const.G * mass_msun * const.M_sun / const.c ** 3).to(u.s).value)
+    return float(mass_msun) * _per_solar_mass()[1]
 
 
 def angular_gravitational_radius_uas(mass_msun, distance_pc):
@@ -52,6 +60,5 @@ def angular_gravitational_radius_uas(mass_msun, distance_pc):
     >>> round(angular_gravitational_radius_uas(6.5e9, 16.8e6), 1)
     3.8
     """
-    const, u = _astropy()
-    ratio = (const.G * mass_msun * const.M_sun / const.c ** 2) / (distance_pc * u.pc)
-    return float((ratio.decompose() * u.rad).to(u.uas).value)
+    length, _, parsec, uas_per_rad = _per_solar_mass()
+    return float(mass_msun) * length / (float(distance_pc) * parsec) * uas_per_rad

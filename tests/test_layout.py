@@ -8,6 +8,8 @@ order.
 """
 
 import ast
+import subprocess
+import sys
 from pathlib import Path
 
 import render
@@ -100,3 +102,14 @@ def test_no_import_cycle_inside_a_room():
 def test_at_most_eight_modules_directly_in_render():
     top = [p.name for p in PACKAGE.glob("*.py") if p.name not in ("__init__.py", "__main__.py")]
     assert len(top) <= 8, top
+
+
+def test_a_command_does_not_import_the_heavy_libraries_it_may_not_need():
+    # Every `nullray` command imports render.api and render.cli.  scipy.signal (glare) and
+    # scipy.optimize (shadow and ring fits) took ~3 s of every start between them; they,
+    # matplotlib, astropy and dask are imported by the functions that use them.
+    code = ("import sys, render.api, render.cli; print(' '.join(m for m in ('scipy.signal', "
+            "'scipy.optimize', 'scipy.stats', 'matplotlib', 'astropy', 'dask') if m in sys.modules))")
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert run.returncode == 0, run.stderr
+    assert run.stdout.split() == []

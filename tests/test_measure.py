@@ -198,3 +198,27 @@ def test_measure_error_is_raised_for_a_tiny_field_of_view():
                              "image.width": 16, "image.height": 16})
     with pytest.raises(MeasureError, match="field of view"):
         measure_scene(scene)
+
+
+def test_a_measurement_publishes_its_report_and_overlay_together_or_not_at_all(tmp_path,
+                                                                               monkeypatch):
+    # The overlay's writer fails after the report was written: neither may appear.
+    import render.measure.shadow_measurement as module
+    from render import load_scene
+    from render.api import make_measurement
+
+    scene = load_scene(EXAMPLE, [q for q in QUICK if q != "--set"])
+    real = module.atomic_write
+
+    def failing_png(path, write, overwrite=False):
+        if str(path).endswith(".png"):
+            raise OSError(28, "No space left on device")
+        return real(path, write, overwrite)
+
+    monkeypatch.setattr(module, "atomic_write", failing_png)
+    with pytest.raises(OSError):
+        make_measurement(scene, tmp_path)
+    assert list(tmp_path.iterdir()) == []
+    monkeypatch.setattr(module, "atomic_write", real)
+    _, paths = make_measurement(scene, tmp_path)
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(p.name for p in paths.values())

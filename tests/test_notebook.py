@@ -110,11 +110,11 @@ def test_metadata_records_the_software_versions(tiny_result):
 def test_failed_flash_check_warns_python_callers(tmp_path, monkeypatch):
     import render.film.products
 
-    # A flash report that fails, in the form flash_check returns (render/film/flash.py), so
+    # A flash report that fails, in the form flash_report returns (render/film/flash.py), so
     # that the warning path is reached without rendering a flashing film.
     failing = {"passes": False, "worst_flashes": 5, "worst_start_s": 0.0,
                "worst_start_frame": 0}
-    monkeypatch.setattr(render.film.products, "flash_check", lambda *a, **k: dict(failing))
+    monkeypatch.setattr(render.film.products, "flash_report", lambda *a, **k: dict(failing))
     scene = render.default_scene(name="blink", **{
         "image.width": 8, "image.height": 8, "observer.placement": "distant",
         "tracing.method": "auto", "animation.frames": 2, "output.npz": False})

@@ -113,9 +113,27 @@ def test_relative_luminance_matches_the_srgb_definition():
 
 
 def test_contact_sheet_picks_evenly_spaced_frames():
-    frames = [np.full((4, 6), k, dtype=np.uint8) for k in range(100)]
-    sheet = contact_sheet(frames, columns=4, max_tiles=8)
+    from render.film.products import sheet_picks
+
+    picks = sheet_picks(100, max_tiles=8)
+    assert picks[0] == 0 and picks[-1] == 99 and len(picks) == 8
+    assert np.ptp(np.diff(picks)) <= 1
+    frames = [np.full((4, 6), k, dtype=np.uint8) for k in picks]
+    sheet = contact_sheet(frames, columns=4)
     assert sheet.shape == (2 * 6 + 2, 4 * 8 + 2, 3)
+
+
+def test_large_frames_are_shrunk_for_the_gif_and_the_sheet_keeping_their_light():
+    from render.film.products import GIF_MAX_WIDTH, SHEET_TILE_MAX_WIDTH, shrunk
+
+    rng = np.random.default_rng(3)
+    frame = rng.integers(0, 256, (1080, 1920, 3), dtype=np.uint8)
+    small = shrunk(frame, GIF_MAX_WIDTH)
+    assert small.shape == (270, 480, 3) and GIF_MAX_WIDTH == 480
+    # A box filter averages 4 x 4 blocks: the mean level is kept to rounding.
+    assert abs(small.mean() - frame.mean()) < 0.6
+    assert shrunk(frame, SHEET_TILE_MAX_WIDTH).shape == (180, 320, 3)
+    assert shrunk(frame[:, :300], 480) is not None and shrunk(frame[:, :300], 480).shape[1] == 300
 
 
 @pytest.mark.parametrize("previous", [None, b"the previous video"])

@@ -154,3 +154,11 @@ def test_still_writes_visibilities_and_samples_baselines(small_scene, tmp_path):
                                  [u_k], [v_k])
     assert np.allclose(direct, on_grid, rtol=1e-9, atol=1e-12 * total)
     assert "ring_diameter_fit_uas" in result.metadata["visibilities"]
+
+
+def test_the_first_zero_of_j0_is_scipys():
+    from scipy import special
+
+    from render.measure.visibilities import J0_FIRST_ZERO
+
+    assert J0_FIRST_ZERO == pytest.approx(float(special.jn_zeros(0, 1)[0]), rel=1e-15)

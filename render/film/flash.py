@@ -18,13 +18,21 @@ import numpy as np
 
 from ..light.color import SRGB_LUMINANCE
 
-__all__ = ["relative_luminance", "flash_check", "FLASH_DELTA", "FLASH_DARK",
+__all__ = ["relative_luminance", "flash_check", "flash_transition", "flash_report", "FLASH_DELTA", "FLASH_DARK",
            "FLASH_AREA_FRACTION", "FLASHES_ALLOWED"]
 
 FLASH_DELTA = 0.10
 FLASH_DARK = 0.80
 FLASH_AREA_FRACTION = 0.25 * 341 * 256 / (1024 * 768)
 FLASHES_ALLOWED = 3
+
+
+def _linear(v):
+    """The sRGB transfer function undone (IEC 61966-2-1), v in 0..1."""
+    return np.where(v <= 0.04045, v / 12.92, ((v + 0.055) / 1.055) ** 2.4)
+
+
+_LINEAR_OF_8_BIT = _linear(np.arange(256) / 255.0)
 
 
 def relative_luminance(pixels):
@@ -35,25 +43,38 @@ def relative_luminance(pixels):
     >>> float(relative_luminance(np.array([255], dtype=np.uint8))[0])
     1.0
     """
-    v = np.asarray(pixels, dtype=float) / 255.0
-    linear = np.where(v <= 0.04045, v / 12.92, ((v + 0.055) / 1.055) ** 2.4)
+    pixels = np.asarray(pixels)
+    if pixels.dtype == np.uint8:
+        linear = _LINEAR_OF_8_BIT[pixels]   # the same numbers, without a power per pixel
+    else:
+        linear = _linear(np.asarray(pixels, dtype=float) / 255.0)
     if linear.ndim >= 3 and linear.shape[-1] == 3:
         return linear @ np.array(SRGB_LUMINANCE)
     return linear
 
 
+def flash_transition(before, after):
+    """+1, -1 or 0: the change from one frame's relative luminance to the next's.
+
+    +1 (-1) when at least ``FLASH_AREA_FRACTION`` of the pixels brighten (darken) by
+    ``FLASH_DELTA`` or more where the darker of the two is below ``FLASH_DARK``.
+    """
+    change = after - before
+    darker = np.minimum(before, after) < FLASH_DARK
+    up = np.mean((change >= FLASH_DELTA) & darker)
+    down = np.mean((change <= -FLASH_DELTA) & darker)
+    if max(up, down) < FLASH_AREA_FRACTION:
+        return 0
+    return 1 if up >= down else -1
+
+
 def _transitions(luminances):
-    """+1, -1 or 0 per consecutive frame pair (see the module docstring)."""
-    events = []
-    for before, after in zip(luminances[:-1], luminances[1:]):
-        change = after - before
-        darker = np.minimum(before, after) < FLASH_DARK
-        up = np.mean((change >= FLASH_DELTA) & darker)
-        down = np.mean((change <= -FLASH_DELTA) & darker)
-        if max(up, down) < FLASH_AREA_FRACTION:
-            events.append(0)
-        else:
-            events.append(1 if up >= down else -1)
+    """+1, -1 or 0 per consecutive frame pair (see the module docstring); any iterable."""
+    events, before = [], None
+    for after in luminances:
+        if before is not None:
+            events.append(flash_transition(before, after))
+        before = after
     return events
 
 
@@ -86,7 +107,11 @@ def flash_check(luminances, fps):
     >>> report["worst_flashes"], report["passes"]
     (12, False)
     """
-    events = _transitions(list(luminances))
+    return flash_report(_transitions(luminances), fps)
+
+
+def flash_report(events, fps):
+    """The :func:`flash_check` report from the frame-to-frame changes (:func:`flash_transition`)."""
     window = max(1, int(round(fps)))  # transitions within one second of screen time
     worst, start = 0, 0
     for first in range(max(1, len(events) - window + 1)):

@@ -17,11 +17,11 @@ import numpy as np
 from ..geodesics.tracing import trace
 from ..imaging.still import shining_crossings
 from ..light.display import scene_scalar_pixels
-from ..light.pattern import emission_time, pattern_factor
+from ..light.pattern import pattern_factor, tortoise_radius
 from ..imaging.sensor import finish_still, needs_sensor
-from ..light.observing import prepare_observation, shade
+from ..light.observing import crossing_weights, order_sum, prepare_observation, shade
 
-__all__ = ["FrameJob", "FrameResult", "render_frame"]
+__all__ = ["FrameJob", "FrameResult", "render_frame", "shades_once"]
 
 
 @dataclass
@@ -99,12 +99,11 @@ def _symmetry_key(scene, velocity):
     return at_zero, scene.trace_settings(), velocity
 
 
-def _trace(scene, velocity, progress=None):
-    """Bundle and raw kernel output of a frame, traced once per film where symmetry allows.
+def _trace_at_azimuth_zero(scene, velocity, progress=None):
+    """Bundle and raw kernel output of the frame's observer turned to azimuth 0, cached.
 
-    The rays are traced for the observer turned to azimuth 0 and cached; every frame
-    with the same :func:`_symmetry_key` gets them turned to its own azimuth
-    (:func:`turned_trace`), which equals tracing them anew (tests/test_animation.py).
+    Every frame with the same :func:`_symmetry_key` shares them: a film traces once
+    where symmetry allows.
     """
     key = _symmetry_key(scene, velocity)
     if key not in _TRACE_CACHE:
@@ -112,7 +111,16 @@ def _trace(scene, velocity, progress=None):
         raw = trace(key[1], alpha, beta, bundle, progress)
         _TRACE_CACHE.clear()
         _TRACE_CACHE[key] = (bundle, raw)
-    bundle, raw = _TRACE_CACHE[key]
+    return _TRACE_CACHE[key]
+
+
+def _trace(scene, velocity, progress=None):
+    """Bundle and raw kernel output of a frame, traced once per film where symmetry allows.
+
+    The rays of :func:`_trace_at_azimuth_zero` turned to the frame's own azimuth
+    (:func:`turned_trace`), which equals tracing them anew (tests/test_animation.py).
+    """
+    bundle, raw = _trace_at_azimuth_zero(scene, velocity, progress)
     return turned_trace(bundle, raw, math.radians(scene["observer.azimuth"]))
 
 
@@ -146,15 +154,104 @@ def turned_trace(bundle, raw, angle):
     return dataclasses.replace(bundle, states=states), turned
 
 
+_CROSSINGS_CACHE = {}
+
+
+def _frame_crossings(scene, raw, bundle):
+    """(g, hits, delay - r*_em + r*_cam) of traced rays: what every frame of a film shares.
+
+    The redshift factors, the crossings that shine and the emission time's offset
+    from the frame's clock depend on the rays' radii, constants of motion and fates,
+    which a turn about the spin axis leaves alone (:func:`turned_trace`), and on the
+    disk's extent; they are computed once per trace and disk.  The emission time of a
+    frame is then its coordinate time minus the offset (:func:`render.light.pattern.emission_time`).
+    """
+    camera_radius = None if scene["observer.placement"] == "distant" else scene["observer.distance"]
+    key = (id(raw["r"]), id(bundle.lam), scene.spin, scene.inner_radius, scene["disk.outer_radius"],
+           scene["disk.orders"], scene["disk.surface"], camera_radius)
+    if key not in _CROSSINGS_CACHE:
+        g, hits = shining_crossings(scene, raw, bundle)
+        with np.errstate(invalid="ignore"):
+            offset = np.asarray(raw["delay"], dtype=float) - tortoise_radius(raw["r"], scene.spin)
+        if camera_radius is not None:
+            offset = offset + float(tortoise_radius(camera_radius, scene.spin))
+        _CROSSINGS_CACHE.clear()
+        # The arrays named in the key are kept alive with the entry, so their ids stay theirs.
+        _CROSSINGS_CACHE[key] = (g, hits, offset, raw["r"], bundle.lam)
+    return _CROSSINGS_CACHE[key][:3]
+
+
+def _shades_by_pattern_only(scene):
+    """Whether a frame's intensity is a sum over crossings of (fixed weight) x (pattern factor).
+
+    True for bolometric light without sky, supersampling or polarisation: the
+    observed intensity g^4 I_em(r) (1 + contrast P) w_limb is linear in the pattern
+    factor, and nothing else in the frame depends on the frame's clock or azimuth.
+    """
+    return (scene["observing.mode"] == "bolometric" and not needs_sensor(scene)
+            and scene["polarisation.model"] == "none")
+
+
+def shades_once(jobs):
+    """Whether every frame of ``jobs`` comes from one trace and one shading (pattern only).
+
+    Such a film costs one trace plus a pattern factor per frame in one process;
+    a pool of processes would trace it once in each of them.
+    """
+    keys = {_symmetry_key(job.scene, job.velocity) for job in jobs}
+    return len(keys) == 1 and all(_shades_by_pattern_only(job.scene) for job in jobs)
+
+
+_WEIGHTS_CACHE = {}
+
+
+def _film_weights(scene, job):
+    """(raw, hits, offset, g^4, I_em(r), limb weight) of a film's one trace at azimuth 0, cached.
+
+    Cached per trace and per frame scene with its azimuth left out: frames whose
+    keyframes change the emission or the disk get their own weights.
+    """
+    bundle, raw = _trace_at_azimuth_zero(scene, job.velocity)
+    settings = {key: value for key, value in scene.values.items() if key != "observer.azimuth"}
+    key = (id(raw["r"]), repr(sorted(settings.items())))
+    if key not in _WEIGHTS_CACHE:
+        g, hits, offset = _frame_crossings(scene, raw, bundle)
+        observation = prepare_observation(scene)
+        _, weight = crossing_weights(observation, raw["r"], g, hits, bundle)
+        with np.errstate(invalid="ignore"):
+            emitted = observation.law.intensity(raw["r"])
+        _WEIGHTS_CACHE.clear()
+        _WEIGHTS_CACHE[key] = (raw, hits, offset, np.asarray(g) ** 4, emitted, weight)
+    return _WEIGHTS_CACHE[key]
+
+
+def _pattern_only_intensity(scene, job):
+    """A frame's bolometric intensity per pixel from the film's cached weights.
+
+    The same arithmetic, in the same order, as :func:`render.light.observing.shade`
+    with the pattern's law (:class:`_ModulatedLaw`), so the result is identical to it.
+    """
+    raw, hits, offset, g4, emitted, weight = _film_weights(scene, job)
+    if scene["pattern.shape"] != "none":
+        factor = pattern_factor(
+            scene["pattern.shape"], raw["r"], raw["phi"] + math.radians(scene["observer.azimuth"]),
+            job.coordinate_time - offset, scene.spin, radius=scene["pattern.radius"],
+            phase_deg=scene["pattern.phase"], size=scene["pattern.size"],
+            contrast=scene["pattern.contrast"], arms=scene["pattern.arms"],
+            pitch_deg=scene["pattern.pitch"])
+        emitted = emitted * np.where(hits, factor, 1.0)
+    with np.errstate(invalid="ignore"):
+        return order_sum(g4 * emitted * weight, hits)
+
+
 def _shade_traced(scene, job, bundle, raw):
     """(observation, shaded) of traced rays, with the pattern at the frame's time."""
 
     spin = scene.spin
-    g, hits = shining_crossings(scene, raw, bundle)
+    g, hits, offset = _frame_crossings(scene, raw, bundle)
     observation = prepare_observation(scene)
     if scene["pattern.shape"] != "none":
-        camera_radius = None if scene["observer.placement"] == "distant" else scene["observer.distance"]
-        t_em = emission_time(job.coordinate_time, raw["delay"], raw["r"], spin, camera_radius)
+        t_em = job.coordinate_time - offset
         factor = pattern_factor(
             scene["pattern.shape"], raw["r"], raw["phi"], t_em, spin,
             radius=scene["pattern.radius"], phase_deg=scene["pattern.phase"],
@@ -206,11 +303,17 @@ def render_frame(job, numba_threads=None):
         numba.set_num_threads(max(1, min(int(numba_threads), numba.config.NUMBA_NUM_THREADS)))
     started = time.perf_counter()
     scene = job.scene
-    bundle, raw = _trace(scene, job.velocity)
-    observation, shaded = _shade_traced(scene, job, bundle, raw)
-    pixels = _frame_pixels(scene, job, observation, shaded, raw, bundle)
+    if _shades_by_pattern_only(scene):
+        # Trace once, shade many: only the pattern factor is computed per frame.
+        intensity = _pattern_only_intensity(scene, job)
+        pixels = scene_scalar_pixels(scene, intensity, job.white)
+    else:
+        bundle, raw = _trace(scene, job.velocity)
+        observation, shaded = _shade_traced(scene, job, bundle, raw)
+        pixels = _frame_pixels(scene, job, observation, shaded, raw, bundle)
+        intensity = shaded.intensity
     height, width = scene["image.height"], scene["image.width"]
     pixel_area = (scene["observer.field_of_view"] / width) ** 2
-    flux = float(np.nansum(shaded.intensity) * pixel_area)
+    flux = float(np.nansum(intensity) * pixel_area)
     return FrameResult(job.index, pixels.reshape((height, width) + pixels.shape[1:]), flux,
                        time.perf_counter() - started)

@@ -21,7 +21,7 @@ from ..output.video import (FRAME_PATTERN, VIDEO_EXTRA_MISSING, contact_sheet,
 from ..scene.keys import KEYFRAME_PLACEMENTS, KEYS
 from ..light.observing import solid_angle_per_area_sr
 from ..units import gravitational_time_s
-from .flash import flash_check, relative_luminance
+from .flash import flash_report, flash_transition, relative_luminance
 
 __all__ = ["write_sequence_products"]
 
@@ -48,21 +48,23 @@ def write_sequence_products(folder, plan, manifest):
     flash : dict
         The :func:`render.film.flash.flash_check` report.
     """
-    from PIL import Image
-
     folder = Path(folder)
     count = len(plan.jobs)
-    frames = [np.asarray(Image.open(folder / FRAME_PATTERN.format(k))) for k in range(count)]
+    picks = sheet_picks(count)
+    previews, tiles, events = [], [], []
+    frames = _frames_from_disk(folder, count, previews, tiles, picks, events)
     paths = {}
     if video_writer_available():
         paths["mp4"] = write_video(folder / "sequence.mp4", frames, plan.fps)
     else:
         warnings.warn(VIDEO_EXTRA_MISSING, NullrayWarning, stacklevel=2)
-    paths["gif"] = write_gif(folder / "sequence.gif", frames, plan.fps)
+        for _ in frames:
+            pass
+    paths["gif"] = write_gif(folder / "sequence.gif", previews, plan.fps)
     clocks = [job.clock for job in plan.jobs]
-    labels = [f"{k}  t={c:.4g}M" for k, c in enumerate(clocks)]
+    labels = [f"{k}  t={clocks[k]:.4g}M" for k in picks]
     paths["sheet"] = write_png(folder / "sequence_sheet.png",
-                               contact_sheet(frames, labels=labels), overwrite=True)
+                               contact_sheet(tiles, labels=labels), overwrite=True)
     fluxes = [manifest["frames"][f"{k:05d}"]["flux"] for k in range(count)]
     distant = plan.scene["observer.placement"] == "distant"
     unit = "retarded time u" if distant else "camera proper time"
@@ -70,13 +72,72 @@ def write_sequence_products(folder, plan, manifest):
                                                      plan.scene)
     paths["lightcurve_png"] = write_light_curve_png(folder / "lightcurve.png", clocks, fluxes,
                                                     unit, **_light_curve_scales(plan))
-    flash = flash_check([relative_luminance(f) for f in frames], plan.fps)
+    flash = flash_report(events, plan.fps)
     if not flash["passes"]:
         warnings.warn(flash_warning(flash), NullrayWarning, stacklevel=2)
     report = json.dumps(flash, indent=1, sort_keys=True).encode()
     paths["flash"] = atomic_write(folder / "flash_check.json", lambda f: f.write(report),
                                   overwrite=True)
     return paths, flash
+
+
+# The GIF is a preview for web pages and chat (the MP4 and the frames are the film): at most
+# this many pixels across.  At full size a 240-frame 1080p GIF took a minute and 28 MB.
+GIF_MAX_WIDTH = 480
+# Each tile of the contact sheet is at most this many pixels across.
+SHEET_TILE_MAX_WIDTH = 320
+
+
+def sheet_picks(count, max_tiles=64):
+    """The frame numbers shown on the contact sheet: at most ``max_tiles``, evenly spread.
+
+    Examples
+    --------
+    >>> sheet_picks(5, max_tiles=3).tolist()
+    [0, 2, 4]
+    """
+    return np.unique(np.linspace(0, count - 1, min(count, max_tiles)).round().astype(int))
+
+
+def shrunk(frame, width):
+    """A frame resized to at most ``width`` pixels across, its aspect kept (Pillow's box filter).
+
+    Examples
+    --------
+    >>> shrunk(np.zeros((90, 160), np.uint8), 80).shape
+    (45, 80)
+    """
+    from PIL import Image
+
+    height, across = frame.shape[:2]
+    if across <= width:
+        return frame
+    size = (width, max(1, int(round(height * width / across))))
+    return np.asarray(Image.fromarray(frame).resize(size, Image.Resampling.BOX))
+
+
+def _frames_from_disk(folder, count, previews, tiles, picks, events):
+    """Yield the finished frames one at a time, read once from disk.
+
+    On the way it keeps what the other products need, so that no more than two
+    full-size frames are in memory: the GIF's shrunk copies (``previews``), the
+    contact sheet's tiles (frames ``picks``) and the flash check's frame-to-frame
+    changes (``events``, :func:`render.film.flash.flash_transition`).
+    """
+    from PIL import Image
+
+    before, wanted = None, set(int(k) for k in picks)
+    for k in range(count):
+        with Image.open(folder / FRAME_PATTERN.format(k)) as image:
+            frame = np.asarray(image)
+        previews.append(shrunk(frame, GIF_MAX_WIDTH))
+        if k in wanted:
+            tiles.append(shrunk(frame, SHEET_TILE_MAX_WIDTH))
+        luminance = relative_luminance(frame)
+        if before is not None:
+            events.append(flash_transition(before, luminance))
+        before = luminance
+        yield frame
 
 
 def flash_warning(flash):

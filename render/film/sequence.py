@@ -13,13 +13,15 @@ import hashlib
 import json
 import math
 import os
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
 from ..about import __version__
 from ..errors import SceneError, SequenceFolderError
 from ..light.observing import exposure_white, prepare_observation
-from ..output.files import atomic_write, jsonable, write_png
+from ..guards.runs import is_dead_here
+from ..output.files import atomic_write, jsonable, sweep_dead_temporaries, write_png
 from ..output.video import FRAME_PATTERN
 from ..scene.loader import frame_count, scene_from_dict
 from ..spacetime.motion import MotionError
@@ -32,6 +34,9 @@ __all__ = ["SequencePlan", "plan_sequence", "render_sequence", "render_frames_he
            "prepare_folder", "SequenceResult", "scene_hash", "MANIFEST"]
 
 MANIFEST = "manifest.json"
+# The manifest is rewritten at most this often while frames arrive (and at the end):
+# rewriting it after every frame cost more than a frame of a traced-once film.
+MANIFEST_INTERVAL_S = 1.0
 
 
 # --- the plan ------------------------------------------------------------------------------
@@ -167,6 +172,8 @@ def _write_manifest(folder, manifest):
 
 def _clear_sequence(folder):
     for path in folder.iterdir():
+        if path.name.endswith(".part") and not is_dead_here(path.name):
+            continue   # a live run's temporary
         if path.is_file() and (path.name.startswith(("frame_", ".", "sequence", "lightcurve"))
                                or path.name in (MANIFEST, "flash_check.json")):
             path.unlink()
@@ -177,7 +184,7 @@ def prepare_folder(plan, output_dir, overwrite=False):
 
     A manifest of another scene (different hash) is refused unless
     ``overwrite``, which discards its frames: old frames are never mixed in.
-    Leftover temporary files of an interrupted run are removed; a listed frame
+    Leftover temporary files of dead runs are removed (a live run's are left alone); a listed frame
     whose file is missing or whose checksum differs is rendered again.
     """
     folder = Path(output_dir) / plan.scene["name"]
@@ -201,8 +208,9 @@ def prepare_folder(plan, output_dir, overwrite=False):
         raise SequenceFolderError(f"{folder} cannot be created: {exc.strerror or exc}") from None
     if not os.access(folder, os.W_OK | os.X_OK):
         raise SequenceFolderError(f"{folder} is not writable")
-    for stale in folder.glob(".*.part"):
-        stale.unlink()  # temporary files of an interrupted run (atomic writes never finished)
+    # Temporaries of dead runs were swept before (render.output.files.sweep_dead_temporaries);
+    # those of a live run of the same film are its own business.
+    sweep_dead_temporaries(folder)
     if manifest is None:
         manifest = {"program": "nullray", "version": __version__, "scene_hash": plan.hash,
                     "frame_count": len(plan.jobs), "fps": plan.fps,
@@ -237,7 +245,10 @@ def render_frames_here(jobs):
 
 
 def _record_frame(folder, plan, manifest, result):
-    """Write a rendered frame's PNG, then list it (with its SHA-256) in the manifest."""
+    """Write a rendered frame's PNG, then list it (with its SHA-256) in the manifest's dict.
+
+    The caller writes the manifest file (:func:`_write_manifest`).
+    """
     name = FRAME_PATTERN.format(result.index)
     path = write_png(folder / name, result.pixels, overwrite=True,
                      metadata={"Software": f"nullray {__version__}",
@@ -248,7 +259,6 @@ def _record_frame(folder, plan, manifest, result):
         "file": name, "sha256": _sha256(path), "flux": result.flux,
         "clock": job.clock, "coordinate_time": job.coordinate_time,
         "seconds": result.seconds}
-    _write_manifest(folder, manifest)
 
 
 def render_sequence(scene, output_dir="outputs", *, run_frames=render_frames_here,
@@ -292,11 +302,21 @@ def render_sequence(scene, output_dir="outputs", *, run_frames=render_frames_her
     total = len(plan.jobs)
     if progress is not None:
         progress(len(done), total, None)
-    for result in run_frames(todo):
-        _record_frame(folder, plan, manifest, result)
-        rendered.append(result.index)
-        if progress is not None:
-            progress(len(manifest["frames"]), total, result)
+    written = time.monotonic()
+    try:
+        for result in run_frames(todo):
+            _record_frame(folder, plan, manifest, result)
+            rendered.append(result.index)
+            if time.monotonic() - written >= MANIFEST_INTERVAL_S:
+                _write_manifest(folder, manifest)
+                written = time.monotonic()
+            if progress is not None:
+                progress(len(manifest["frames"]), total, result)
+    finally:
+        # Also on Ctrl-C or an error: every frame written so far is listed, so a rerun
+        # resumes after it.  A frame written but not yet listed (a killed process) is
+        # rendered again.
+        _write_manifest(folder, manifest)
     fluxes = [manifest["frames"][f"{k:05d}"]["flux"] for k in range(len(plan.jobs))]
     paths, flash = {}, {}
     if products:

@@ -27,7 +27,6 @@ for digital images, Proc. SIGGRAPH 95, 325 (adding the eye's scatter to pictures
 """
 
 import numpy as np
-from scipy.signal import fftconvolve
 
 __all__ = ["GLARE_AGE", "GLARE_PIGMENTATION", "GLARE_CORE_DEG", "glare_psf", "glare_kernel",
            "add_glare"]
@@ -71,6 +70,8 @@ def add_glare(image, pixel_deg):
     Light is conserved within the picture: each pixel keeps 1 - S of its own light,
     where S is the kernel's sum, and spreads S over its neighbours.
     """
+    from scipy.signal import fftconvolve  # here: importing scipy.signal takes ~2 s
+
     image = np.nan_to_num(np.asarray(image, dtype=float), nan=0.0, posinf=0.0)
     height, width = image.shape[:2]
     kernel = glare_kernel(height, width, pixel_deg)

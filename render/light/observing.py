@@ -54,7 +54,7 @@ from .thermal import accretion_rate_g_per_s, cgs, radiative_efficiency
 __all__ = ["MODES", "Observation", "Shaded", "prepare_observation", "shade", "exposure_white",
            "check_observing", "observing_frequency_hz", "pixel_angle_rad", "disk_integrated_tables",
            "samples_own_grid", "solid_angle_per_area_sr", "disk_geometry", "pixel_scale",
-           "polarised_columns"]
+           "crossing_weights", "order_sum", "polarised_columns"]
 
 MODES = ("bolometric", "monochromatic", "true_colour", "spectrum", "line")
 # Where true colour puts its white: the image's own luminance percentile, or a given value.
@@ -252,15 +252,22 @@ class Shaded:
     info: dict = field(default_factory=dict)
 
 
-def _weights(obs, r, eta, g, energy_ratio, hits):
-    mu = emission_cosine(r, eta, g, energy_ratio)
+def crossing_weights(obs, r, g, hits, bundle):
+    """(mu, weight) of each crossing: its emission cosine and its limb-darkening weight.
+
+    The weight is 0 where the crossing does not shine.  ``r``, ``g`` and ``hits`` are
+    (N, orders) arrays of the rays of ``bundle``.
+    """
+    mu = emission_cosine(r, bundle.eta[:, None], g, bundle.energy_ratio[:, None])
     return mu, np.where(hits, limb_darkening(mu, obs.limb), 0.0)
 
 
-def _summed(values, hits):
+def order_sum(values, hits):
+    """Per-ray sum over the shining crossings of an (N, orders) array (NaN counts as 0)."""
     with np.errstate(invalid="ignore"):
         values = np.where(hits, values, 0.0)
     return np.nan_to_num(values, nan=0.0).sum(axis=1)
+
 
 
 def disk_reaches_border(hits, height, width):
@@ -301,10 +308,10 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
     r = raw["r"]
     law = obs.law
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
-    mu, weight = _weights(obs, r, bundle.eta[:, None], g, bundle.energy_ratio[:, None], hits)
+    mu, weight = crossing_weights(obs, r, g, hits, bundle)
     with np.errstate(invalid="ignore"):
         per_crossing = observed_bolometric(g, law.intensity(r)) * weight
-    bolometric = _summed(per_crossing, hits)
+    bolometric = order_sum(per_crossing, hits)
     info = dict(obs.info)
     info.update(pixel_scale(scene))
     products = {}
@@ -316,7 +323,7 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
     if obs.mode == "monochromatic":
 
         per_crossing = observed_specific_intensity(obs.frequency_hz, g, r, law) * weight
-        intensity = _summed(per_crossing, hits)
+        intensity = order_sum(per_crossing, hits)
         products["specific_intensity"] = intensity
         products["bolometric_intensity"] = bolometric
         info["units"] = "intensity: erg s^-1 cm^-2 Hz^-1 sr^-1"
@@ -329,7 +336,7 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
         pixels = scene_scalar_pixels(scene, intensity, white)
     if obs.mode == "line":
         with np.errstate(invalid="ignore"):
-            intensity = _summed(g ** 4 * law.intensity(r) * weight, hits)
+            intensity = order_sum(g ** 4 * law.intensity(r) * weight, hits)
         pixels = scene_scalar_pixels(scene, intensity, white)
         products["line_intensity"] = intensity
         info["line_energy_kev"] = scene["observing.line_energy"]

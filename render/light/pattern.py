@@ -33,7 +33,10 @@ Bardeen, Press & Teukolsky (1972), ApJ 178, 347.
 Cunningham & Bardeen (1973), ApJ 183, 237 (images of an orbiting source).
 """
 
+import math
+
 import numpy as np
+from numba import njit, prange
 
 from ..spacetime.kerr import horizon_radii, keplerian_angular_velocity
 
@@ -116,22 +119,43 @@ def pattern_factor(shape, r, phi, t_em, spin, *, radius=8.0, phase_deg=0.0, size
     >>> float(pattern_factor("spot", 8.0, 0.0, 0.0, 0.0, radius=8.0, contrast=3.0))
     4.0
     """
+    if shape not in PATTERNS:
+        raise ValueError(f"pattern shape must be one of {', '.join(PATTERNS)}, got {shape!r}")
     r = np.asarray(r, dtype=float)
     if shape == "none":
         return np.ones_like(r)
-    phi = np.asarray(phi, dtype=float)
-    t_em = np.asarray(t_em, dtype=float)
-    phase = np.radians(phase_deg)
-    with np.errstate(invalid="ignore"):
-        if shape == "spot":
-            angle = phase + keplerian_angular_velocity(radius, spin) * t_em
-            d2 = r * r + radius * radius - 2.0 * r * radius * np.cos(phi - angle)
-            shape = np.exp(-np.maximum(d2, 0.0) / (2.0 * size * size))
-        elif shape == "spiral":
-            omega = keplerian_angular_velocity(np.maximum(r, 1e-300), spin)
-            psi = arms * (phi - omega * t_em - phase) - arms * np.log(r) / np.tan(
-                np.radians(pitch_deg))
-            shape = (0.5 * (1.0 + np.cos(psi))) ** 2
+    r, phi, t_em = np.broadcast_arrays(r, np.asarray(phi, dtype=float),
+                                       np.asarray(t_em, dtype=float))
+    out = np.empty(r.shape)
+    flat = [np.ascontiguousarray(x).reshape(-1) for x in (r, phi, t_em)] + [out.reshape(-1)]
+    phase = math.radians(phase_deg)
+    if shape == "spot":
+        omega = float(keplerian_angular_velocity(radius, spin))
+        _spot_kernel(*flat, radius, phase, omega, size, contrast)
+    else:
+        with np.errstate(invalid="ignore"):
+            omega = keplerian_angular_velocity(np.maximum(flat[0], 1e-300), spin)
+        _spiral_kernel(*flat, np.asarray(omega, dtype=float), phase, float(arms),
+                       math.tan(math.radians(pitch_deg)), contrast)
+    return out
+
+
+@njit(parallel=True, cache=True)
+def _spot_kernel(r, phi, t_em, out, radius, phase, omega, size, contrast):
+    """out = 1 + contrast exp(-d^2 / (2 size^2)), the spot's centre at phase + omega t_em."""
+    for i in prange(r.size):
+        d2 = (r[i] * r[i] + radius * radius
+              - 2.0 * r[i] * radius * math.cos(phi[i] - phase - omega * t_em[i]))
+        if math.isnan(d2):
+            out[i] = math.nan
         else:
-            raise ValueError(f"pattern shape must be one of {', '.join(PATTERNS)}, got {shape!r}")
-    return 1.0 + contrast * shape
+            out[i] = 1.0 + contrast * math.exp(-max(d2, 0.0) / (2.0 * size * size))
+
+
+@njit(parallel=True, cache=True)
+def _spiral_kernel(r, phi, t_em, out, omega, phase, arms, tan_pitch, contrast):
+    """out = 1 + contrast ((1 + cos psi) / 2)^2, psi = m (phi - omega t - phase) - m ln r / tan."""
+    for i in prange(r.size):
+        psi = arms * (phi[i] - omega[i] * t_em[i] - phase) - arms * math.log(r[i]) / tan_pitch
+        half = 0.5 * (1.0 + math.cos(psi))
+        out[i] = 1.0 + contrast * half * half

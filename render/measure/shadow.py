@@ -55,7 +55,6 @@ Johannsen & Psaltis (2010), ApJ 718, 446.
 import math
 
 import numpy as np
-from scipy.optimize import brentq, minimize_scalar
 
 from ..camera.observers import FRAMES, observer_frame
 from ..spacetime.kerr import check_spin, metric_functions, photon_orbit_radii
@@ -138,6 +137,8 @@ class _Branch:
         if self.distance is not None and not self.distance > r_ret:
             raise ValueError(f"the camera must lie outside the photon region (r > {r_ret:.6g} M "
                              f"for spin {spin:g}), got {self.distance:g} M")
+        from scipy.optimize import brentq  # here: scipy.optimize costs ~1 s of every start
+
         self.circle_radius = None
         if self.a < _SCHWARZSCHILD_SPIN:
             self.r1 = self.r2 = 3.0
@@ -387,6 +388,8 @@ def shadow_moments(spin, inclination_deg, *, distance=None, frame="zamo",
     >>> round(m["area"] / np.pi, 9), round(m["radius"] ** 2, 9)   # Synge (1966)
     (27.0, 27.0)
     """
+    from scipy.optimize import minimize_scalar
+
     branch = _Branch(spin, inclination_deg, distance, frame)
     moments = closed_curve_moments(*_sample(branch, int(n_points)))
     if branch.circle_radius is None:

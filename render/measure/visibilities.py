@@ -28,12 +28,12 @@ J0(pi d rho) and its ringing at long baselines).
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize, special
 
 __all__ = ["VisibilityGrid", "visibility_grid", "sample_visibilities", "radial_profile",
            "first_null_diameter", "thin_ring_fit", "pixel_window", "J0_FIRST_ZERO"]
 
-J0_FIRST_ZERO = float(special.jn_zeros(0, 1)[0])   # 2.404825...
+# The first zero of J0 (Abramowitz & Stegun 1964, table 9.5; tests check it with scipy).
+J0_FIRST_ZERO = 2.404825557695773
 
 
 @dataclass
@@ -180,6 +180,8 @@ def thin_ring_fit(rho, amplitude, rho_max=None):
     ----------
     Johnson et al. (2020), Sci. Adv. 6, eaaz1310 (the thin-ring model).
     """
+    from scipy import optimize, special  # here: scipy.optimize costs ~1 s of every start
+
     rho, amplitude = np.asarray(rho), np.asarray(amplitude)
     d0, _ = first_null_diameter(rho, amplitude)
     if not np.isfinite(d0):

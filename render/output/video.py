@@ -80,13 +80,12 @@ def write_gif(path, frames, fps):
     return atomic_write(path, save, overwrite=True)
 
 
-def contact_sheet(frames, columns=8, labels=None, max_tiles=64):
-    """A grid of (up to ``max_tiles``, evenly chosen) frames with their numbers."""
+def contact_sheet(frames, columns=8, labels=None):
+    """A grid of the given frames (all of one size), each labelled (by default its number)."""
     from PIL import Image, ImageDraw
 
-    count = len(frames)
-    picks = np.unique(np.linspace(0, count - 1, min(count, max_tiles)).round().astype(int))
-    tiles = [_rgb(frames[i]) for i in picks]
+    picks = range(len(frames))
+    tiles = [_rgb(frame) for frame in frames]
     h, w = tiles[0].shape[:2]
     columns = min(columns, len(tiles))
     rows = -(-len(tiles) // columns)
