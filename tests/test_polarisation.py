@@ -1,5 +1,6 @@
 """Polarised disk light: emission (Chandrasekhar 1960), transport (Walker–Penrose), Stokes maps."""
 
+import functools
 import math
 
 import numpy as np
@@ -64,16 +65,28 @@ def _milne_thomson(n_cells, n_mu=24, tau_max=60.0):
     return emergent
 
 
-def test_chandrasekhar_degree_matches_an_independent_transfer_solution():
-    mus = np.array([0.0, 0.02, 0.05, 0.1, 0.2, 0.3, 0.5, 0.7, 0.9, 1.0])
+@functools.lru_cache(maxsize=None)
+def _emergent(cells):
+    return _milne_thomson(cells)
+
+
+def _transfer_degree(mus):
+    """Degree p(mu) of the transfer solution above, extrapolated in the number of cells.
+
+    The cell-constant source converges as cells^-2 (400 -> 800 changes the limb value
+    by 0.012 points, 200 -> 400 by 0.045): Richardson's extrapolation, with its own
+    error well below 0.005 percentage points.
+    """
     degrees = []
     for cells in (400, 800):
-        i_l, i_r = _milne_thomson(cells)(mus)
+        i_l, i_r = _emergent(cells)(np.asarray(mus, dtype=float))
         degrees.append((i_r - i_l) / (i_r + i_l))
-    # The cell-constant source converges as cells^-2 (400 -> 800 changes the limb value
-    # by 0.012 points, 200 -> 400 by 0.045): Richardson's extrapolation, with its own
-    # error well below 0.005 percentage points.
-    reference = degrees[1] + (degrees[1] - degrees[0]) / 3.0
+    return degrees[1] + (degrees[1] - degrees[0]) / 3.0
+
+
+def test_chandrasekhar_degree_matches_an_independent_transfer_solution():
+    mus = np.array([0.0, 0.02, 0.05, 0.1, 0.2, 0.3, 0.5, 0.7, 0.9, 1.0])
+    reference = _transfer_degree(mus)
     assert np.max(np.abs(chandrasekhar_degree(mus) - reference)) < 1e-4   # 0.01 points
     # Chandrasekhar (1960), Table XXIV (from memory): 11.71 % at the limb, E along the surface.
     assert reference[0] == pytest.approx(0.1171, abs=5e-4)
@@ -194,6 +207,56 @@ def test_flat_space_limit_keeps_the_emitted_angle(inclination, chi_deg):
         assert np.max(np.abs(folded)) < math.degrees(1e-3)
 
 
+def _rest_frame_cross(g, u, left, right):
+    """(left x right)^a in the rest frame of u: eps_{dabc} u^d left^b right^c, index raised.
+
+    eps_{t r theta phi} = +sqrt(-det g), so that e_r x e_theta = e_phi (common practice).
+    """
+    root = math.sqrt(-np.linalg.det(g))
+    lower = np.array([root * np.linalg.det(np.array([u, basis, left, right]))
+                      for basis in np.eye(4)])
+    return np.linalg.solve(g, lower)
+
+
+@pytest.mark.parametrize("spin", [0.0, 0.9])
+def test_emitted_kappa_matches_a_frame_built_from_the_metric(spin):
+    # Independent construction (Misner, Thorne & Wheeler 1973, sec. 22.5; Bardeen, Press &
+    # Teukolsky 1972 for the Keplerian Omega): the gas's 4-velocity from the metric, the
+    # photon's direction n in its rest frame, f_par = n x e_theta and f_perp = n x f_par by
+    # the Levi-Civita tensor, and kappa of cos(chi) f_par + sin(chi) f_perp from the
+    # Walker–Penrose formula (itself checked against parallel transport above).  Both
+    # are unit vectors, so kappa agrees up to the sign of f; 1e-9 covers rounding.
+    rng = np.random.default_rng(7)
+    checked = 0
+    while checked < 12:
+        r, lam, eta = rng.uniform(2.5, 15.0), rng.uniform(-7.0, 5.0), rng.uniform(0.0, 30.0)
+        delta = r * r - 2 * r + spin ** 2
+        big_r = (r * r + spin ** 2 - spin * lam) ** 2 - delta * (eta + (lam - spin) ** 2)
+        if big_r <= 0.0 or r < 3.0 + 3.0 * (spin == 0.0):   # outside the ISCO, R > 0
+            continue
+        sign_r, sign_theta = rng.choice([-1.0, 1.0], 2)
+        chi = rng.uniform(-1.5, 1.5)
+        g = _kerr_metric(np.array([0.0, r, math.pi / 2, 0.0]), spin)
+        omega = 1.0 / (r ** 1.5 + spin)
+        u = np.array([1.0, 0.0, 0.0, omega])
+        u /= math.sqrt(-(u @ g @ u))
+        k = np.linalg.solve(g, np.array([-1.0, sign_r * math.sqrt(big_r) / delta,
+                                         sign_theta * math.sqrt(eta), lam]))
+        energy = -(k @ g @ u)
+        n = k / energy - u
+        normal = np.array([0.0, 0.0, 1.0 / r, 0.0])
+        f_par = _rest_frame_cross(g, u, n, normal)
+        f_par /= math.sqrt(f_par @ g @ f_par)
+        f_perp = _rest_frame_cross(g, u, n, f_par)
+        f = math.cos(chi) * f_par + math.sin(chi) * f_perp
+        expected = np.array(walker_penrose(k, f, r, 0.0, 1.0, spin))
+        got = np.array([v[0, 0] for v in emitted_kappa(
+            np.array([[r]]), np.array([lam]), np.array([eta]), spin, sign_r, sign_theta, chi)])
+        sign = 1.0 if expected @ got > 0 else -1.0
+        assert np.allclose(sign * got, expected, rtol=1e-9, atol=1e-9 * np.abs(expected).max())
+        checked += 1
+
+
 def test_iau_angle_convention():
     # IAU (1974): from north (up) through east (left); E along the horizontal is 90 deg.
     assert np.degrees(evpa_from_screen(1.0, 0.0)) == pytest.approx(90.0)
@@ -271,16 +334,93 @@ def test_constant_polarisation_keeps_its_degree_per_crossing(small_scene):
     assert np.allclose(np.hypot(q, u), 0.3 * i, atol=1e-12 * i.max())
 
 
-def _spectrum_angles(small_scene, spin):
-    scene = small_scene(**{
-        "image.width": 48, "image.height": 48, "observer.inclination": 75.0,
-        "black_hole.spin": spin, "disk.outer_radius": 60.0, "observer.field_of_view": 130.0,
-        "emission.law": "novikov_thorne", "observing.mode": "spectrum",
-        "observing.spectrum_low": 1e14, "observing.spectrum_high": 1e19,
-        "observing.spectrum_points": 21, "polarisation.model": "electron_scattering",
-        "output.npz": False})
-    table = render_still(scene).tables["spectrum"]
-    return table["flux_relativistic_jy"], table["polarisation_angle_deg"]
+def _polarised_spectrum(small_scene, is_result=False, **values):
+    """The spectrum table of a distant observer (its disk grid) with polarisation."""
+    base = {"image.width": 8, "image.height": 8, "emission.law": "novikov_thorne",
+            "observing.mode": "spectrum", "observing.spectrum_points": 7,
+            "polarisation.model": "electron_scattering", "output.npz": False}
+    base.update(values)
+    result = render_still(small_scene(**base))
+    if is_result:
+        return result
+    return result.tables["spectrum"], result.metadata["observing"]
+
+
+POLARISED_COLUMNS = ("stokes_q_jy", "stokes_u_jy", "polarised_degree", "polarisation_angle_deg")
+
+
+def test_spectrum_polarisation_comes_from_the_disk_grid(small_scene, tmp_path):
+    # The disk grid (render.light.disk_integral) ignores the picture: the same columns at
+    # two picture sizes and fields of view, exactly (common practice: an integral over
+    # the disk may not depend on how its picture is framed).
+    from astropy.io import fits
+
+    from render.output.figures import read_still
+    from render.output.files import write_still
+    from render.output.products import write_products
+
+    values = {"black_hole.spin": 0.9, "observer.inclination": 70.0,
+              "observing.spectrum_low": 1e15, "observing.spectrum_high": 1e18,
+              "observing.sampling_tolerance": 0.01}
+    result = _polarised_spectrum(small_scene, True, **values, **{
+        "output.npz": True, "output.fits": True})
+    one, info = result.tables["spectrum"], result.metadata["observing"]
+    two, _ = _polarised_spectrum(small_scene, **values, **{
+        "image.width": 12, "image.height": 12, "observer.field_of_view": 25.0})
+    assert info["sampling"].startswith("disk grid") and info["disk_grid"]["converged"]
+    assert not info["warnings"]
+    for name in ("flux_relativistic_jy",) + POLARISED_COLUMNS:
+        assert np.array_equal(one[name], two[name]), name
+    # Chandrasekhar's degree never exceeds 11.7 % and orders do not add degree.
+    assert np.all((one["polarised_degree"] > 0.0) & (one["polarised_degree"] < 0.1172))
+    # The CSV, NPZ and FITS files carry the columns (common practice: self-describing).
+    paths = write_still(result, tmp_path) | write_products(result, tmp_path)
+    table = np.genfromtxt(paths["spectrum_csv"], delimiter=",", names=True)
+    with np.load(paths["npz"]) as data, fits.open(paths["fits"]) as hdus:
+        for name in POLARISED_COLUMNS:
+            assert np.allclose(table[name], one[name], rtol=1e-9)   # 10 digits in the CSV
+            assert np.array_equal(data[f"spectrum_{name}"], one[name])
+            assert np.array_equal(hdus["SPECTRUM"].data[name.upper()], one[name])
+        assert hdus["SPECTRUM"].header["POLCONV"] == "IAU"
+        assert hdus["SPECTRUM"].columns["STOKES_Q_JY"].unit == "Jy"
+    assert np.array_equal(read_still(paths["npz"]).tables["spectrum"]["stokes_u_jy"],
+                          one["stokes_u_jy"])   # and the NPZ reads back as a still
+
+
+def test_face_on_schwarzschild_spectrum_has_no_net_polarisation(small_scene):
+    # Symmetry (common practice): the disk grid is uniform in the position angle, and
+    # about the axis every E-vector has a partner turned by the same angle.  Rounding of
+    # the sums is ~1e-16 of the flux; 1e-10 leaves room and fails for any real pattern.
+    table, info = _polarised_spectrum(small_scene, **{
+        "black_hole.spin": 0.0, "observer.inclination": 0.0, "observing.spectrum_low": 1e15,
+        "observing.spectrum_high": 1e18})
+    flux = table["flux_relativistic_jy"]
+    assert np.all(flux > 0.0) and info["disk_grid"]["converged"]
+    assert np.all(np.abs(table["stokes_q_jy"]) < 1e-10 * flux)
+    assert np.all(np.abs(table["stokes_u_jy"]) < 1e-10 * flux)
+
+
+def test_far_disk_spectrum_has_chandrasekhars_degree_at_cos_i(small_scene):
+    # A disk 1e4 M from the hole is seen as in flat space (bending ~4/r = 4e-4, orbital
+    # speed v = r^-1/2 = 0.01): every emission angle is the inclination, every E-vector
+    # lies along the disk, so the integrated degree is p(cos i) at every energy, with
+    # p from our own solution of the transfer problem (Chandrasekhar 1960, sec. 70; the
+    # solution above), and the IAU angle is 90 deg.  Doppler boosting correlates with the
+    # emission angle's first-order change only in the Wien tail: below 1e-3 of the peak
+    # flux is left out; 2e-4 covers v^2 = 1e-4 and the table's 1e-4.
+    inclination = 75.0
+    table, info = _polarised_spectrum(small_scene, **{
+        "black_hole.spin": 0.0, "observer.inclination": inclination,
+        "disk.inner_radius": 1e4, "disk.outer_radius": 2e4, "disk.surface": "opaque",
+        "observing.spectrum_low": 1e13, "observing.spectrum_high": 1e16,
+        "observing.sampling_tolerance": 0.01})
+    flux = table["flux_relativistic_jy"]
+    bright = flux > 1e-3 * flux.max()
+    assert bright.sum() >= 3 and not info["warnings"]
+    expected = _transfer_degree([math.cos(math.radians(inclination))])[0]
+    assert expected == pytest.approx(0.0455, abs=5e-4)   # about 4.5 % at cos i = 0.26
+    assert np.max(np.abs(table["polarised_degree"][bright] - expected)) < 2e-4
+    assert np.max(np.abs(_fold(table["polarisation_angle_deg"][bright] - 90.0))) < 0.01
 
 
 def _fold(angle_deg):
@@ -293,9 +433,14 @@ def test_angle_turns_with_energy_more_for_faster_spin(small_scene):
     # disk-integrated angle keeps the flat-space orientation (E along the disk: 90 deg
     # here) at low energy and turns at high energy, where the inner disk shines; the
     # turn grows with spin (a few degrees for a = 0, well over ten near a = 1 at i = 75).
+    # The spectrum is integrated on the disk grid (distant observer).
     turns = []
     for spin in (0.0, 0.998):
-        flux, angle = _spectrum_angles(small_scene, spin)
+        table, _ = _polarised_spectrum(small_scene, **{
+            "observer.inclination": 75.0, "black_hole.spin": spin, "disk.outer_radius": 60.0,
+            "observing.spectrum_low": 1e14, "observing.spectrum_high": 1e19,
+            "observing.spectrum_points": 21})
+        flux, angle = table["flux_relativistic_jy"], table["polarisation_angle_deg"]
         assert abs(_fold(angle[0] - 90.0)) < 1.0
         # The highest frequency still carrying 1e-3 of the peak flux.
         last = np.nonzero(flux > 1e-3 * flux.max())[0][-1]

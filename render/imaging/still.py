@@ -80,10 +80,6 @@ def _with_ticks(scene, result):
     return result
 
 
-POLARISED_SPECTRUM_COLUMNS = ("stokes_q_jy", "stokes_u_jy", "polarised_degree",
-                              "polarisation_angle_deg")
-
-
 def _with_disk_integrals(scene, observation, result):
     """Add the spectrum or line of the whole disk, sampled on its own grid (distant observer).
 
@@ -98,14 +94,8 @@ def _with_disk_integrals(scene, observation, result):
             warnings.warn(message, NullrayWarning, stacklevel=3)
         return result
     started = time.perf_counter()
-    tables, info = disk_integrated_tables(observation, scene)
-    # The grid carries no polarisation yet: the picture's Q_nu, U_nu, degree and angle
-    # (render.light.observing.polarised_spectrum) stay beside the grid's spectrum.
-    polarised = {name: column for name, column in result.tables.get("spectrum", {}).items()
-                 if name in POLARISED_SPECTRUM_COLUMNS}
+    tables, info = disk_integrated_tables(observation, scene)   # with Q_nu, U_nu if polarised
     result.tables.update(tables)
-    if polarised:
-        result.tables["spectrum"].update(polarised)
     observed = result.metadata["observing"]
     observed.setdefault("warnings", []).extend(info.pop("warnings"))
     observed.update(info)

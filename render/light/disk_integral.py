@@ -19,7 +19,11 @@ integral is sampled for the disk instead:
   neighbours (:func:`render.light.spectra.line_profile`), so a histogram in
   narrow energy bins has no aliasing spikes;
 * the lattice is doubled until the result changes by less than a stated
-  relative L1 tolerance (:func:`converge`).
+  relative L1 tolerance (:func:`converge`);
+* with a polarisation model, each sample also carries the Stokes weights
+  p cos 2 EVPA and p sin 2 EVPA of its light at the observer
+  (:func:`render.light.polarisation.crossing_stokes`), so that Q and U are
+  integrated with the same quadrature as I.
 
 Rays are traced with the closed form (:mod:`render.geodesics.closed_form`), which is
 exact for a distant observer.
@@ -38,8 +42,10 @@ from ..camera.observers import distant_observer_rays
 from ..geodesics.tracing import TraceSettings, trace
 from .disk import redshift_factor, shining_mask
 from .emission import emission_cosine
+from .polarisation import crossing_stokes
 
-__all__ = ["DiskGeometry", "DiskSamples", "sample_disk", "converge", "EDGE_SPLIT"]
+__all__ = ["DiskGeometry", "DiskSamples", "sample_disk", "converge", "relative_change",
+           "EDGE_SPLIT", "POLARISED_FLOOR"]
 
 # Sub-cells per side of a lattice cell that straddles an edge of the disk's image.
 EDGE_SPLIT = 6
@@ -66,6 +72,9 @@ class DiskGeometry:
     opaque : bool
         An opaque disk shows only the first crossing on it.
     max_crossings : int
+    polarisation : Polarisation, optional
+        The emitted polarisation (:class:`render.light.polarisation.Polarisation`);
+        None or model ``none``: the samples carry no Stokes weights.
     """
 
     spin: float
@@ -75,6 +84,7 @@ class DiskGeometry:
     orders: int = 1
     opaque: bool = True
     max_crossings: int = 64
+    polarisation: object = None
 
 
 @dataclass
@@ -83,7 +93,9 @@ class DiskSamples:
 
     ``r, g, mu, weight, below, above`` have shape (N, orders); ``weight`` is the
     image-plane area in M^2 a sample stands for (0 where it does not shine);
-    the sample's g covers ``g - below .. g + above``.
+    the sample's g covers ``g - below .. g + above``.  ``stokes_q``, ``stokes_u``
+    (N, orders; None without polarisation) are p cos 2 EVPA and p sin 2 EVPA of
+    the sample's light at the observer (IAU angle): Q = I stokes_q, U = I stokes_u.
     """
 
     r: np.ndarray
@@ -94,10 +106,19 @@ class DiskSamples:
     above: np.ndarray
     hits: np.ndarray
     info: dict = field(default_factory=dict)
+    stokes_q: np.ndarray = None
+    stokes_u: np.ndarray = None
+
+
+def _is_polarised(geometry):
+    return geometry.polarisation is not None and geometry.polarisation.model != "none"
 
 
 def _trace_points(geometry, alpha, beta):
-    """r, g, mu and the shining mask (N, orders) of rays at image-plane points."""
+    """r, g, mu, the shining mask and the Stokes weights (N, orders) of rays at points.
+
+    The Stokes weights are (None, None) without polarisation.
+    """
     bundle = distant_observer_rays(alpha, beta, geometry.spin, geometry.inclination_deg)
     settings = TraceSettings(spin=geometry.spin, method="closed_form",
                              inclination_deg=geometry.inclination_deg, orders=geometry.orders,
@@ -109,7 +130,13 @@ def _trace_points(geometry, alpha, beta):
     hits = shining_mask(r, raw["fate"], raw["n_crossings"], geometry.r_in, geometry.r_out,
                         geometry.orders, geometry.opaque) & np.isfinite(g)
     mu = emission_cosine(r, bundle.eta[:, None], g)
-    return r, g, mu, hits
+    stokes = (None, None)
+    if _is_polarised(geometry):
+        unit = crossing_stokes(geometry.spin, geometry.inclination_deg, 0.0, geometry.polarisation,
+                               r, raw["inward"], bundle, (alpha, beta), mu, np.ones(r.shape),
+                               hits)
+        stokes = (unit["stokes_q_order"], unit["stokes_u_order"])
+    return r, g, mu, hits, stokes
 
 
 def _lattice(rho_min, rho_max, n):
@@ -147,7 +174,7 @@ def _lattice_samples(geometry, rho_min, rho_max, n):
     rho = np.exp(log_rho)
     alpha = (rho[:, None] * np.cos(psi)[None, :]).ravel()
     beta = (rho[:, None] * np.sin(psi)[None, :]).ravel()
-    r, g, mu, hits = _trace_points(geometry, alpha, beta)
+    r, g, mu, hits, stokes = _trace_points(geometry, alpha, beta)
     shape = (n + 1, n, geometry.orders)
     hit_grid = hits.reshape(shape)
     corners = _corner_stack(hit_grid)
@@ -166,7 +193,8 @@ def _lattice_samples(geometry, rho_min, rho_max, n):
     flat = (-1, geometry.orders)
     vertices = DiskSamples(r=r, g=g, mu=mu, weight=weight.reshape(flat),
                            below=below.reshape(flat), above=above.reshape(flat),
-                           hits=(weight > 0).reshape(flat))
+                           hits=(weight > 0).reshape(flat), stokes_q=stokes[0],
+                           stokes_u=stokes[1])
     edge_cells = np.nonzero(mixed)
     corner_g = _corner_stack(g_grid)
     g_range = (np.max(np.where(corners, corner_g, -np.inf), axis=0)
@@ -190,17 +218,20 @@ def _edge_samples(geometry, log_rho, psi, edge_cells, g_range):
     area = (0.5 * (rho_high ** 2 - rho_low ** 2) * d_psi / s).ravel()
     rho = np.exp(sub_log).ravel()
     alpha, beta = rho * np.cos(sub_psi.ravel()), rho * np.sin(sub_psi.ravel())
-    r, g, mu, hits = _trace_points(geometry, alpha, beta)
+    r, g, mu, hits, stokes = _trace_points(geometry, alpha, beta)
     # A sub-cell's own g range: its parent's, shrunk by the split (NaN where none shone).
     half = np.nan_to_num(np.repeat(g_range[rows, cols], s * s, axis=0), nan=0.0) / (2.0 * s)
     return DiskSamples(r=r, g=g, mu=mu, weight=np.where(hits, area[:, None], 0.0),
-                       below=half, above=half.copy(), hits=hits)
+                       below=half, above=half.copy(), hits=hits, stokes_q=stokes[0],
+                       stokes_u=stokes[1])
 
 
 def _joined(parts, info):
+    names = ("r", "g", "mu", "weight", "below", "above", "hits")
+    if parts[0].stokes_q is not None:
+        names += ("stokes_q", "stokes_u")
     return DiskSamples(**{name: np.concatenate([getattr(p, name) for p in parts])
-                          for name in ("r", "g", "mu", "weight", "below", "above", "hits")},
-                       info=info)
+                          for name in names}, info=info)
 
 
 def sample_disk(geometry, n, rho_max=None):
@@ -248,6 +279,36 @@ def sample_disk(geometry, n, rho_max=None):
     return _joined(parts, info)
 
 
+# A polarised row (Q or U) is judged against at least this fraction of the flux's norm, so
+# that a net polarisation near zero (a face-on disk) does not demand endless refinement.
+POLARISED_FLOOR = 0.01
+
+
+def relative_change(value, previous):
+    """Relative L1 change of a product between two lattices (the largest over its rows).
+
+    A 1-D product: sum|v - v_prev| / sum|v|.  Rows (K, F): the first row (a flux)
+    as above; each later row (a signed quantity such as Stokes Q) relative to
+    max(sum|row|, POLARISED_FLOOR sum|first row|), i.e. for a degree of
+    polarisation below 1 % the change is that of the degree in units of 1 %.
+
+    Examples
+    --------
+    >>> float(relative_change(np.array([2.0, 2.0]), np.array([2.0, 1.0])))
+    0.25
+    >>> rows = np.array([[1.0, 1.0], [0.0, 0.0]])
+    >>> float(relative_change(rows + [[0.0], [1e-4]], rows))   # 2e-4 / (0.01 * 2)
+    0.01
+    """
+    value, previous = np.atleast_2d(value), np.atleast_2d(previous)
+    flux = np.abs(value[0]).sum()
+    changes = []
+    for k, (row, before) in enumerate(zip(value, previous)):
+        scale = np.abs(row).sum() if k == 0 else max(np.abs(row).sum(), POLARISED_FLOOR * flux)
+        changes.append(float(np.abs(row - before).sum() / scale) if scale > 0 else 0.0)
+    return max(changes)
+
+
 def converge(geometry, measure, tolerance, start=128, largest=1024):
     """Double the lattice until ``measure(samples)`` changes by at most ``tolerance`` (L1).
 
@@ -255,9 +316,12 @@ def converge(geometry, measure, tolerance, start=128, largest=1024):
     ----------
     geometry : DiskGeometry
     measure : callable
-        ``measure(samples) -> ndarray``: the product (a binned line, a spectrum).
+        ``measure(samples) -> ndarray``: the product (a binned line, a spectrum),
+        or rows of products (K, F): a flux first, then quantities judged against
+        it, such as the Stokes Q and U spectra (:func:`relative_change`).
     tolerance : float
-        Relative L1 change sum|v_2n - v_n| / sum|v_2n| at which to stop.
+        Relative L1 change sum|v_2n - v_n| / sum|v_2n| at which to stop (for
+        rows, the largest of :func:`relative_change`).
     start, largest : int
         First and largest lattice size n (cells per side).
 
@@ -273,10 +337,7 @@ def converge(geometry, measure, tolerance, start=128, largest=1024):
     while True:
         samples = sample_disk(geometry, n)
         value = np.asarray(measure(samples), dtype=float)
-        change = np.inf
-        if previous is not None:
-            scale = np.abs(value).sum()
-            change = float(np.abs(value - previous).sum() / scale) if scale > 0 else 0.0
+        change = np.inf if previous is None else relative_change(value, previous)
         levels.append({"cells": n, "rays": samples.info["rays"],
                        "l1_change": None if np.isinf(change) else change})
         if change <= tolerance or 2 * n > largest:

@@ -33,7 +33,7 @@ L(mu) is the limb-darkening factor of :func:`render.light.emission.limb_darkenin
 at the emission angle in the emitter's frame (:func:`render.light.emission.emission_cosine`).
 """
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -46,7 +46,7 @@ from ..errors import SceneError
 from ..units import angular_gravitational_radius_uas
 from .cie import blackbody_xyz_sum
 from .emission import observed_specific_intensity
-from .polarisation import Polarisation, observed_polarisation, stokes_from_crossings
+from .polarisation import Polarisation, observed_stokes
 from .disk_integral import DiskGeometry, converge
 from .spectra import flat_space_spectrum, image_spectrum, line_profile, redshift_spread
 from .thermal import accretion_rate_g_per_s, cgs, radiative_efficiency
@@ -54,7 +54,7 @@ from .thermal import accretion_rate_g_per_s, cgs, radiative_efficiency
 __all__ = ["MODES", "Observation", "Shaded", "prepare_observation", "shade", "exposure_white",
            "check_observing", "observing_frequency_hz", "pixel_angle_rad", "disk_integrated_tables",
            "samples_own_grid", "solid_angle_per_area_sr", "disk_geometry", "pixel_scale",
-           "crossing_weights", "order_sum"]
+           "crossing_weights", "order_sum", "polarised_columns"]
 
 MODES = ("bolometric", "monochromatic", "true_colour", "spectrum", "line")
 # Where true colour puts its white: the image's own luminance percentile, or a given value.
@@ -345,11 +345,6 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
         info.setdefault("warnings", []).extend(picture_info.pop("warnings", []))
         info.update(picture_info)
     if obs.polarisation.model != "none" and alpha is not None:
-        if obs.mode == "spectrum" and "spectrum" not in tables:
-            # The disk grid carries no polarisation yet: the spectrum's Q and U are summed
-            # over the picture's pixels (render.imaging.still keeps them beside the grid's I).
-            pixel_area = (scene["observer.field_of_view"] / scene["image.width"]) ** 2
-            tables["spectrum"] = _spectrum_table(obs, scene, r, g, weight * pixel_area, hits)
         _add_polarisation(obs, scene, raw, bundle, (alpha, beta), (mu, per_crossing, g, weight),
                           hits, products, tables)
     if obs.mode in ("bolometric", "true_colour", "spectrum") and law.name == "novikov_thorne":
@@ -358,61 +353,42 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
 
 
 def _add_polarisation(obs, scene, raw, bundle, points, crossings, hits, products, tables):
-    """Add the Stokes maps (and the spectrum's Q, U) of shaded crossings, in place.
+    """Add the Stokes maps (and a camera's picture spectrum's Q, U) of shaded crossings.
 
     ``points`` are the rays' (alpha, beta); ``crossings`` their (mu, per-crossing
-    intensity, g, limb weight), each (N, orders).
+    intensity, g, limb weight), each (N, orders).  A distant observer's spectrum
+    carries its polarisation on the disk grid (:func:`disk_integrated_tables`).
     """
     mu, per_crossing, g, weight = crossings
-    degree, evpa = observed_polarisation(scene.viewpoint(), obs.polarisation, raw, bundle,
-                                         points[0], points[1], mu, hits)
-    products.update(polarised_products(per_crossing, degree, evpa, hits))
-    if obs.mode == "spectrum":
-        tables["spectrum"].update(polarised_spectrum(obs, scene, raw["r"], g, weight, hits,
-                                                     degree, evpa, tables["spectrum"]))
+    view = scene.viewpoint()
+    products.update(observed_stokes(view, obs.polarisation, raw, bundle, points[0], points[1],
+                                    mu, per_crossing, hits))
+    if obs.mode == "spectrum" and "spectrum" in tables:
+        # Stokes Q, U are linear in I: the same pass with the pixels' weights as I gives
+        # the weights p L cos 2 EVPA, p L sin 2 EVPA of the picture's Q_nu, U_nu.
+        area = (scene["observer.field_of_view"] / scene["image.width"]) ** 2
+        stokes = observed_stokes(view, obs.polarisation, raw, bundle, points[0], points[1], mu,
+                                 weight * area, hits)
+        table = tables["spectrum"]
+        q, u = image_spectrum(obs.law, table["frequency_hz"], raw["r"], g,
+                              np.stack([stokes["stokes_q_order"], stokes["stokes_u_order"]],
+                                       axis=-1), hits, solid_angle_per_area_sr(scene)).T
+        table.update(polarised_columns(table["flux_relativistic_jy"], q, u))
 
 
-def polarised_products(per_crossing, degree, evpa, hits):
-    """Stokes maps of the crossings' light: per order and summed, degree and IAU angle.
+def polarised_columns(flux_jy, stokes_q_jy, stokes_u_jy):
+    """The spectrum's polarisation columns: Q_nu, U_nu (Jy), degree and IAU angle (deg).
 
-    ``per_crossing`` (N, orders) is each crossing's contribution to the image's
-    intensity (the mode's own units), ``degree`` and ``evpa`` (rad) its
-    polarisation at the observer.  The angle map is in degrees, NaN where the
-    light is unpolarised; the degree is sqrt(Q^2 + U^2) / I (orders of different
-    angle partly cancel).
+    Examples
+    --------
+    >>> columns = polarised_columns(np.array([2.0]), np.array([0.0]), np.array([-0.2]))
+    >>> float(columns["polarised_degree"][0]), float(columns["polarisation_angle_deg"][0])
+    (0.1, -45.0)
     """
-    i, q, u, (i_sum, q_sum, u_sum) = stokes_from_crossings(per_crossing, degree, evpa, hits)
     with np.errstate(invalid="ignore", divide="ignore"):
-        degree_map = np.where(i_sum > 0.0, np.hypot(q_sum, u_sum) / i_sum, np.nan)
-        angle = np.where(np.hypot(q_sum, u_sum) > 0.0,
-                         np.degrees(0.5 * np.arctan2(u_sum, q_sum)), np.nan)
-    return {"stokes_i_order": i, "stokes_q_order": q, "stokes_u_order": u,
-            "stokes_i": i_sum, "stokes_q": q_sum, "stokes_u": u_sum,
-            "polarised_degree": degree_map, "polarisation_angle": angle}
-
-
-def polarised_spectrum(obs, scene, r, g, weight, hits, degree, evpa, table):
-    """Disk-integrated Q_nu, U_nu (Jy), degree and IAU angle (deg) on the spectrum's grid.
-
-    F_nu is linear in the per-crossing weight, so Q_nu is the image spectrum of
-    the weights p cos(2 EVPA) L(mu) (split into their positive and negative parts,
-    which :func:`render.light.spectra.image_spectrum` takes separately).
-    """
-    nu, omega = table["frequency_hz"], pixel_angle_rad(scene) ** 2
-    shining = hits & np.isfinite(evpa)
-    out = {}
-    for name, factor in (("stokes_q_jy", np.cos(2.0 * np.nan_to_num(evpa))),
-                         ("stokes_u_jy", np.sin(2.0 * np.nan_to_num(evpa)))):
-        signed = np.nan_to_num(weight * degree * factor)
-        out[name] = (image_spectrum(obs.law, nu, r, g, np.maximum(signed, 0.0), shining, omega)
-                     - image_spectrum(obs.law, nu, r, g, np.maximum(-signed, 0.0), shining,
-                                      omega))
-    total = table["flux_relativistic_jy"]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out["polarised_degree"] = np.hypot(out["stokes_q_jy"], out["stokes_u_jy"]) / total
-    out["polarisation_angle_deg"] = np.degrees(0.5 * np.arctan2(out["stokes_u_jy"],
-                                                                out["stokes_q_jy"]))
-    return out
+        degree = np.where(flux_jy > 0.0, np.hypot(stokes_q_jy, stokes_u_jy) / flux_jy, np.nan)
+    return {"stokes_q_jy": stokes_q_jy, "stokes_u_jy": stokes_u_jy, "polarised_degree": degree,
+            "polarisation_angle_deg": np.degrees(0.5 * np.arctan2(stokes_u_jy, stokes_q_jy))}
 
 
 def samples_own_grid(scene):
@@ -494,20 +470,31 @@ def _line_table(obs, scene, r, g, area_weight, hits, spread):
     return out, info
 
 
-def _spectrum_table(obs, scene, r, g, area_weight, hits):
-    """F_nu (Jy) and nu F_nu (erg s^-1 cm^-2), ray-traced and in flat space."""
+def _spectrum_table(obs, scene, r, g, area_weight, hits, stokes=None):
+    """F_nu (Jy) and nu F_nu (erg s^-1 cm^-2), ray-traced and in flat space.
+
+    ``stokes``, when given, is the pair of weights (N, orders) of Q and U
+    (``area_weight`` times p cos 2 EVPA and p sin 2 EVPA): the table gains the
+    columns of :func:`polarised_columns`, from the same Planck evaluations.
+    """
     k = cgs()
     nu = np.geomspace(scene["observing.spectrum_low"], scene["observing.spectrum_high"],
                       scene["observing.spectrum_points"])
+    if stokes is not None:
+        area_weight = np.stack([area_weight, stokes[0], stokes[1]], axis=-1)
     relativistic = image_spectrum(obs.law, nu, r, g, area_weight, hits,
                                   solid_angle_per_area_sr(scene))
+    polarised = {}
+    if stokes is not None:
+        relativistic, q, u = relativistic.T
+        polarised = polarised_columns(relativistic, q, u)
     flat = flat_space_spectrum(obs.law, nu, scene.inner_radius, scene["disk.outer_radius"],
                                scene["observer.inclination"], scene["black_hole.mass"],
                                scene["black_hole.distance"], obs.limb)
     return {"frequency_hz": nu, "energy_kev": nu * k["h"] / k["keV"],
             "flux_relativistic_jy": relativistic, "flux_flat_jy": flat,
             "nufnu_relativistic_erg_s_cm2": nu * relativistic * k["Jy"],
-            "nufnu_flat_erg_s_cm2": nu * flat * k["Jy"]}
+            "nufnu_flat_erg_s_cm2": nu * flat * k["Jy"]} | polarised
 
 
 def disk_geometry(scene):
@@ -523,17 +510,32 @@ def disk_integrated_tables(obs, scene):
 
     Returns ``(tables, info)``: ``{"spectrum": ...}`` or ``{"line": ...}`` and the
     sampling's account (grid, rays, the last L1 change, warnings).  The picture
-    (image.width, field of view) plays no part.
+    (image.width, field of view) plays no part.  With a polarisation model the
+    spectrum gains the columns of :func:`polarised_columns`, integrated on the
+    same grid, and the grid is refined until Q_nu and U_nu converge too
+    (:func:`render.light.disk_integral.relative_change`).
     """
-    geometry = disk_geometry(scene)
+    is_polarised = obs.mode == "spectrum" and obs.polarisation.model != "none"
+    geometry = replace(disk_geometry(scene),
+                       polarisation=obs.polarisation if is_polarised else None)
 
     def weights(samples):
         return samples.weight * limb_darkening(samples.mu, obs.limb)
 
+    def stokes(samples):
+        if not is_polarised:
+            return None
+        weight = weights(samples)
+        return weight * samples.stokes_q, weight * samples.stokes_u
+
     if obs.mode == "spectrum":
         def measure(samples):
-            return _spectrum_table(obs, scene, samples.r, samples.g, weights(samples),
-                                   samples.hits)["nufnu_relativistic_erg_s_cm2"]
+            table = _spectrum_table(obs, scene, samples.r, samples.g, weights(samples),
+                                    samples.hits, stokes(samples))
+            if not is_polarised:
+                return table["nufnu_relativistic_erg_s_cm2"]
+            return table["frequency_hz"] * np.stack([table[name] for name in (
+                "flux_relativistic_jy", "stokes_q_jy", "stokes_u_jy")])
     else:
         def measure(samples):
             spread = (samples.below, samples.above)
@@ -546,7 +548,7 @@ def disk_integrated_tables(obs, scene):
     warnings = []
     if obs.mode == "spectrum":
         tables = {"spectrum": _spectrum_table(obs, scene, samples.r, samples.g, weights(samples),
-                                              samples.hits)}
+                                              samples.hits, stokes(samples))}
     else:
         table, line_info = _line_table(obs, scene, samples.r, samples.g, weights(samples),
                                        samples.hits, (samples.below, samples.above))

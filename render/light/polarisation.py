@@ -75,7 +75,7 @@ __all__ = ["POLARISATION_MODELS", "Polarisation", "chandrasekhar_degree",
            "chandrasekhar_degree_exact",
            "chandrasekhar_h_function", "walker_penrose", "emitted_kappa",
            "distant_screen_vector", "camera_screen_vectors", "evpa_from_screen",
-           "stokes_from_crossings", "crossing_kappa_signs", "observed_polarisation"]
+           "crossing_kappa_signs", "observed_stokes", "crossing_stokes"]
 
 POLARISATION_MODELS = ("none", "electron_scattering", "constant")
 
@@ -209,121 +209,79 @@ def walker_penrose(k, f, r, cos_t, sin_t, a):
 
 
 @njit(cache=True)
-def _equatorial_momentum(r, lam, eta, a, sign_r, sign_theta, k):
-    """Fill k with the forward photon momentum (E = 1) at the equator; False if R < 0 there."""
-    delta = r * r - 2.0 * r + a * a
-    big_r = (r * r + a * a - a * lam) ** 2 - delta * (eta + (lam - a) ** 2)
-    if big_r < 0.0 or eta < 0.0:
-        return False
-    p_theta = sign_theta * math.sqrt(eta)
-    big_a = (r * r + a * a) ** 2 - a * a * delta
-    k[0] = (big_a / (r * r) - 2.0 * a * lam / r) / delta
-    k[1] = sign_r * math.sqrt(big_r) / (r * r)
-    k[2] = p_theta / (r * r)
-    k[3] = (2.0 * a / r + (delta - a * a) * lam / (r * r)) / delta
-    return True
+def _surface_kappa(r, lam, eta, a, sign_r, sign_theta, is_unit):
+    """Walker–Penrose constant of a crossing's surface-parallel E-vector (f.f = 1 if ``is_unit``).
 
+    In closed form, with no emitter tetrad.  At the equator (cos theta = 0) the
+    E-vector f parallel to the surface has f^theta = 0, and f.u = 0, f.k = 0 for
+    the Keplerian emitter (u_t, u_phi proportional to -(x^3 - 2x + a) and
+    x^4 - 2ax + a^2, x = sqrt(r); Bardeen, Press & Teukolsky 1972) and the
+    forward photon k (E = 1, k_t = -1, k_phi = lam, Delta k_r = K = +-sqrt(R)).
+    These fix f up to a factor: (f^t, f^r, f^phi) = (K U_phi, Delta (U_phi +
+    lam U_t), -K U_t), with U_t, U_phi the two polynomials above.  With
+    k^t - a k^phi = (r^2 + a^2 - a lam) / Delta the constant reduces to
+    r kappa = (A', -B'),
 
-@njit(cache=True)
-def _emitter_tetrad(r, a, frame):
-    """Rows u, e_r, e_theta, e_phi of the Keplerian emitter at the equator (prograde for a >= 0)."""
-    omega = 1.0 / (r ** 1.5 + a)
-    g_tt, g_tp = -(1.0 - 2.0 / r), -2.0 * a / r
-    g_pp = r * r + a * a + 2.0 * a * a / r
-    u_t = 1.0 / math.sqrt(-(g_tt + 2.0 * g_tp * omega + g_pp * omega * omega))
-    frame[:, :] = 0.0
-    frame[0, 0], frame[0, 3] = u_t, u_t * omega
-    frame[1, 1] = math.sqrt(r * r - 2.0 * r + a * a) / r
-    frame[2, 2] = 1.0 / r
-    low_t = g_tt * frame[0, 0] + g_tp * frame[0, 3]
-    low_p = g_tp * frame[0, 0] + g_pp * frame[0, 3]
-    v_t, v_p = low_p, -low_t   # orthogonal to u in the t-phi plane, along +phi
-    norm = math.sqrt(g_tt * v_t * v_t + 2.0 * g_tp * v_t * v_p + g_pp * v_p * v_p)
-    frame[3, 0], frame[3, 3] = v_t / norm, v_p / norm
+        A' = r^2 (U_phi + lam U_t)(r^2 + a^2 - a lam) - R (U_phi + a U_t),
+        B' = +-sqrt(eta) K (a U_phi + (r^2 + a^2) U_t),
 
+    four multiplications deep and free of divisions.  Its length (any real
+    factor) leaves the observed angle unchanged, so f is only normalised when
+    ``is_unit`` asks for it.  Returns (0, 0) for light leaving along the normal
+    (f parallel to k).
 
-@njit(cache=True)
-def _emitted_one(r, lam, eta, a, sign_r, sign_theta, chi, k, frame, out, n, par, perp, f):
-    """kappa of one crossing's unit polarisation vector at angle chi from the surface direction.
-
-    ``n``, ``par``, ``perp`` (3) and ``f`` (4) are scratch arrays.
+    References
+    ----------
+    Walker & Penrose (1970); Connors, Piran & Stark (1980), sec. II;
+    Chandrasekhar (1983), sec. 62; Bardeen, Press & Teukolsky (1972), ApJ 178, 347
+    (the circular orbits' u_t, u_phi).
     """
-    out[0], out[1] = 0.0, 0.0
-    if not _equatorial_momentum(r, lam, eta, a, sign_r, sign_theta, k):
-        return
-    _emitter_tetrad(r, a, frame)
-    g_tt, g_tp = -(1.0 - 2.0 / r), -2.0 * a / r
-    g_pp = r * r + a * a + 2.0 * a * a / r
-    g_rr = r * r / (r * r - 2.0 * r + a * a)
-    # Frame components of k: k_(i) = g(k, e_i); n = spatial part / energy.
-    energy = -(g_tt * k[0] * frame[0, 0] + g_tp * (k[0] * frame[0, 3] + k[3] * frame[0, 0])
-               + g_pp * k[3] * frame[0, 3])
-    n[0] = g_rr * k[1] * frame[1, 1] / energy
-    n[1] = r * r * k[2] * frame[2, 2] / energy
-    n[2] = (g_tt * k[0] * frame[3, 0] + g_tp * (k[0] * frame[3, 3] + k[3] * frame[3, 0])
-            + g_pp * k[3] * frame[3, 3]) / energy
-    # f_par = n x N with N = e_theta (the frame's second axis), f_perp = n x f_par.
-    size = math.sqrt(n[2] ** 2 + n[0] ** 2)
-    if size < 1e-12:
-        return   # emitted along the normal: no direction parallel to the surface
-    par[0], par[1], par[2] = -n[2] / size, 0.0, n[0] / size
-    perp[0] = n[1] * par[2] - n[2] * par[1]
-    perp[1] = n[2] * par[0] - n[0] * par[2]
-    perp[2] = n[0] * par[1] - n[1] * par[0]
-    f[:] = 0.0
-    for i in range(3):
-        comp = math.cos(chi) * par[i] + math.sin(chi) * perp[i]
-        for mu_index in range(4):
-            f[mu_index] += comp * frame[i + 1, mu_index]
-    out[0], out[1] = walker_penrose(k, f, r, 0.0, 1.0, a)
+    r2, a2 = r * r, a * a
+    delta = r2 - 2.0 * r + a2
+    reach = r2 + a2 - a * lam
+    big_r = max(reach * reach - delta * (eta + (lam - a) ** 2), 0.0)   # rounding at a turn
+    root_r = sign_r * math.sqrt(big_r)
+    x = math.sqrt(r)
+    u_t = -(x * (r - 2.0) + a)
+    u_phi = r2 - 2.0 * a * x + a2
+    kappa1 = r2 * (u_phi + lam * u_t) * reach - big_r * (u_phi + a * u_t)
+    kappa2 = -sign_theta * math.sqrt(max(eta, 0.0)) * root_r * (a * u_phi + (r2 + a2) * u_t)
+    if not is_unit:
+        return kappa1, kappa2
+    f_t, f_r, f_phi = root_r * u_phi, delta * (u_phi + lam * u_t), -root_r * u_t
+    size = (-(1.0 - 2.0 / r) * f_t * f_t - 4.0 * a / r * f_t * f_phi + r2 / delta * f_r * f_r
+            + (r2 + a2 + 2.0 * a2 / r) * f_phi * f_phi)
+    scale = 1.0 / (r * math.sqrt(size)) if size > 0.0 else 0.0
+    return kappa1 * scale, kappa2 * scale
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True)
+def _turned_kappa(k1, k2, cos_chi, sin_chi):
+    """kappa of the E-vector turned by chi from the surface direction towards n x f_par.
+
+    Turning f by 90 degrees on the screen multiplies kappa by -i (the constant
+    is the self-dual part of the bivector k ^ f), so the emitter's angle is a
+    complex phase: kappa(chi) = kappa(0) exp(-i chi).
+    """
+    return k1 * cos_chi + k2 * sin_chi, k2 * cos_chi - k1 * sin_chi
+
+
+@njit(cache=True)
 def _emitted_kernel(r, lam, eta, a, sign_r, sign_theta, chi, kappa1, kappa2):
     n_rays, n_orders = r.shape
-    block = 512   # rays per scratch allocation (one per block, not per ray)
-    for b in prange((n_rays + block - 1) // block):
-        k, f, out = np.empty(4), np.empty(4), np.empty(2)
-        frame = np.empty((4, 4))
-        n, par, perp = np.empty(3), np.empty(3), np.empty(3)
-        for i in range(b * block, min((b + 1) * block, n_rays)):
-            for j in range(n_orders):
-                if not (r[i, j] == r[i, j]) or not (chi[i, j] == chi[i, j]):
-                    kappa1[i, j], kappa2[i, j] = np.nan, np.nan
-                    continue
-                _emitted_one(r[i, j], lam[i], eta[i], a, sign_r[i, j], sign_theta[i, j],
-                             chi[i, j], k, frame, out, n, par, perp, f)
-                kappa1[i, j], kappa2[i, j] = out[0], out[1]
-
-
-@njit(cache=True, parallel=True)
-def _traced_kappa_kernel(r, lam, eta, a, inward, mu_start, dmu_start, chi, kappa1, kappa2):
-    """:func:`_emitted_kernel` with the signs of :func:`crossing_kappa_signs` made per ray."""
-    n_rays, n_orders = r.shape
-    block = 512
-    for b in prange((n_rays + block - 1) // block):
-        k, f, out = np.empty(4), np.empty(4), np.empty(2)
-        frame = np.empty((4, 4))
-        n, par, perp = np.empty(3), np.empty(3), np.empty(3)
-        for i in range(b * block, min((b + 1) * block, n_rays)):
-            side = 1.0
-            if mu_start[i] != 0.0:
-                side = 1.0 if mu_start[i] > 0.0 else -1.0
-            elif dmu_start[i] != 0.0:
-                side = 1.0 if dmu_start[i] > 0.0 else -1.0
-            for j in range(n_orders):
-                if not (r[i, j] == r[i, j]) or not (chi[i, j] == chi[i, j]):
-                    kappa1[i, j], kappa2[i, j] = np.nan, np.nan
-                    continue
-                sign_r = 1.0 if inward[i, j] else -1.0
-                sign_theta = -side if j % 2 == 0 else side
-                _emitted_one(r[i, j], lam[i], eta[i], a, sign_r, sign_theta, chi[i, j], k, frame,
-                             out, n, par, perp, f)
-                kappa1[i, j], kappa2[i, j] = out[0], out[1]
+    for i in range(n_rays):
+        for j in range(n_orders):
+            if not (r[i, j] == r[i, j]) or not (chi[i, j] == chi[i, j]):
+                kappa1[i, j], kappa2[i, j] = np.nan, np.nan
+                continue
+            k1, k2 = _surface_kappa(r[i, j], lam[i], eta[i], a, sign_r[i, j], sign_theta[i, j],
+                                    True)
+            kappa1[i, j], kappa2[i, j] = _turned_kappa(k1, k2, math.cos(chi[i, j]),
+                                                       math.sin(chi[i, j]))
 
 
 def emitted_kappa(r, lam, eta, spin, sign_r, sign_theta, chi):
-    """Walker–Penrose constant (kappa_1, kappa_2) of each crossing's emitted unit E-vector.
+    """Walker–Penrose constant (kappa_1, kappa_2) of each crossing's emitted E-vector.
 
     Parameters
     ----------
@@ -341,8 +299,7 @@ def emitted_kappa(r, lam, eta, spin, sign_r, sign_theta, chi):
     Returns
     -------
     kappa1, kappa2 : ndarray (N, orders)
-        Zero where the photon leaves along the normal or the crossing is not a
-        real point of the ray.
+        Of the unit E-vector (f.f = 1); zero where the photon leaves along the normal.
 
     References
     ----------
@@ -449,54 +406,28 @@ def evpa_from_screen(e_x, e_y):
                                                                  angle - np.pi, angle))
 
 
-def stokes_from_crossings(intensity, degree, evpa, hits):
-    """Per-crossing Stokes (I, Q, U) (N, orders) and their sums over orders (N,).
-
-    Q = p I cos(2 EVPA), U = p I sin(2 EVPA); crossings that do not shine, or
-    whose angle is undefined (p = 0 along the normal), add their I and no Q, U.
-
-    Examples
-    --------
-    >>> i, q, u, total = stokes_from_crossings(np.array([[2.0]]), np.array([[0.5]]),
-    ...                                        np.array([[0.0]]), np.array([[True]]))
-    >>> q.tolist(), [float(t[0]) for t in total]
-    ([[1.0]], [2.0, 1.0, 0.0])
-    """
-    shape = np.shape(hits)
-    arrays = [np.ascontiguousarray(np.broadcast_to(a, shape), dtype=float)
-              for a in (intensity, degree, evpa)]
-    i, q, u = np.empty(shape), np.empty(shape), np.empty(shape)
-    totals = np.empty((3, shape[0]))
-    _stokes_kernel(*arrays, np.ascontiguousarray(hits, dtype=np.bool_), i, q, u, totals)
-    return i, q, u, (totals[0], totals[1], totals[2])
+def _emission_table(polarisation):
+    """The emitted degree as a table uniform in sqrt(mu), and the emitter's angle chi (rad)."""
+    if polarisation.model == "electron_scattering":
+        return _degree_table()[1], 0.0
+    return np.full(2, float(polarisation.degree)), math.radians(polarisation.angle_deg)
 
 
-@njit(cache=True, parallel=True)
-def _stokes_kernel(intensity, degree, evpa, hits, i_out, q_out, u_out, totals):
-    for n in prange(intensity.shape[0]):
-        i_sum = q_sum = u_sum = 0.0
-        for j in range(intensity.shape[1]):
-            i = intensity[n, j] if hits[n, j] and intensity[n, j] == intensity[n, j] else 0.0
-            q = u = 0.0
-            if i != 0.0 and evpa[n, j] == evpa[n, j] and degree[n, j] == degree[n, j]:
-                polarised = degree[n, j] * i
-                q = polarised * math.cos(2.0 * evpa[n, j])
-                u = polarised * math.sin(2.0 * evpa[n, j])
-            i_out[n, j], q_out[n, j], u_out[n, j] = i, q, u
-            i_sum += i
-            q_sum += q
-            u_sum += u
-        totals[0, n], totals[1, n], totals[2, n] = i_sum, q_sum, u_sum
+def observed_stokes(view, polarisation, raw, bundle, alpha, beta, mu, intensity, hits):
+    """Stokes maps at the observer of the crossings that shine: per order, summed, degree, angle.
 
-
-def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu, hits=None):
-    """Degree and IAU angle (rad) at the observer of every crossing, (N, orders) each.
+    One pass over the crossings (:func:`_stokes_kernel`): for each crossing that
+    shines, the emitted degree p(mu), the Walker–Penrose constant of its E-vector
+    in closed form, the E-vector on the observer's screen and Q + iU =
+    p I exp(2 i EVPA), with no trigonometric function per crossing; crossings
+    that do not shine cost a test of ``hits``.
 
     Parameters
     ----------
     view : Viewpoint
         The observer (distant, or a camera at rest in its frame, off the axis).
     polarisation : Polarisation
+        Its ``model`` is not ``none``.
     raw : dict
         The traced rays (``r``, ``inward``; :func:`render.geodesics.tracing.trace`).
     bundle : RayBundle
@@ -504,84 +435,172 @@ def observed_polarisation(view, polarisation, raw, bundle, alpha, beta, mu, hits
         The rays' image-plane points (M), as the bundle was made from them.
     mu : ndarray (N, orders)
         Emission cosines in the emitters' frames.
-    hits : ndarray of bool (N, orders), optional
-        The crossings that shine; the others are skipped (NaN angle, zero degree).
+    intensity : ndarray (N, orders)
+        Each crossing's contribution to Stokes I (any units; NaN counts as 0).
+    hits : ndarray of bool (N, orders)
+        The crossings that shine.
 
     Returns
     -------
-    degree, evpa : ndarray (N, orders)
-        NaN angle where the E-vector is undefined (emission along the normal).
+    dict
+        ``stokes_i_order``, ``stokes_q_order``, ``stokes_u_order`` (N, orders);
+        ``stokes_i``, ``stokes_q``, ``stokes_u``, ``polarised_degree``
+        (sqrt(Q^2 + U^2) / I, NaN where I = 0) and ``polarisation_angle`` (IAU,
+        degrees, NaN where unpolarised), each (N,).  Q = p I cos(2 EVPA),
+        U = p I sin(2 EVPA), V = 0; the angle is undefined (no Q, U) for light
+        leaving along the disk's normal.
+
+    References
+    ----------
+    Walker & Penrose (1970); Connors, Piran & Stark (1980), eqs. 4-6;
+    IAU (1974), Transactions XVB, 166 (the angle).
     """
-    degree, chi = polarisation.emitted(mu)
-    r = raw["r"] if hits is None else np.where(hits, raw["r"], np.nan)
+    screen = np.empty((0, 4))
+    if view.placement != "distant":
+        screen = _camera_screen(view, alpha, beta)
+    return crossing_stokes(view.spin, view.inclination_deg, view.roll_deg, polarisation, raw["r"],
+                           raw["inward"], bundle, (alpha, beta), mu, intensity, hits, screen)
+
+
+def crossing_stokes(spin, inclination_deg, roll_deg, polarisation, r, inward, bundle, points, mu,
+                    intensity, hits, screen=None):
+    """:func:`observed_stokes` from plain values (a distant observer unless ``screen`` is given).
+
+    ``points`` are the rays' (alpha, beta) in M; ``screen`` (N, 4), when given,
+    maps each ray's (kappa_1, kappa_2) linearly to its E-vector (right, up)
+    before the roll (a camera's pixel screens, :func:`_camera_screen`).
+    """
     shape = np.shape(r)
-    kappa1, kappa2 = np.empty(shape), np.empty(shape)
-    # The crossings' photon directions (crossing_kappa_signs) worked out inside the kernel.
-    _traced_kappa_kernel(np.ascontiguousarray(r, dtype=float),
-                         np.ascontiguousarray(bundle.lam, dtype=float),
-                         np.ascontiguousarray(bundle.eta, dtype=float), float(view.spin),
-                         np.ascontiguousarray(raw["inward"], dtype=np.bool_),
-                         np.ascontiguousarray(bundle.states[:, 2], dtype=float),
-                         np.ascontiguousarray(bundle.states[:, 3], dtype=float),
-                         np.ascontiguousarray(np.broadcast_to(chi, shape), dtype=float),
-                         kappa1, kappa2)
-    alpha = np.asarray(alpha, dtype=float).reshape(-1, 1)
-    beta = np.asarray(beta, dtype=float).reshape(-1, 1)
-    roll = math.radians(view.roll_deg)
-    degree = np.ascontiguousarray(np.broadcast_to(degree, kappa1.shape), dtype=float)
-    if view.placement == "distant":
-        # Connors, Piran & Stark (1980), eqs. 4-6 (distant_screen_vector), the roll and the
-        # IAU angle (evpa_from_screen) in one pass over the crossings.
-        nu = -(alpha.ravel() + view.spin * math.sin(math.radians(view.inclination_deg)))
-        degree_out, evpa = np.empty(kappa1.shape), np.empty(kappa1.shape)
-        _distant_evpa_kernel(kappa1, kappa2, np.ascontiguousarray(nu),
-                             np.ascontiguousarray(beta.ravel()), math.cos(roll),
-                             math.sin(roll), degree, degree_out, evpa)
-        return degree_out, evpa
-    e_a, e_b = _camera_screen(view, kappa1, kappa2, alpha, beta)
-    # The screen axes (alpha, beta) are the pixel axes turned by the roll (image_plane_grid).
-    e_x = math.cos(roll) * e_a + math.sin(roll) * e_b
-    e_y = -math.sin(roll) * e_a + math.cos(roll) * e_b
-    undefined = ~((kappa1 != 0.0) | (kappa2 != 0.0))   # NaN (skipped) counts as undefined
-    evpa = np.where(undefined, np.nan, evpa_from_screen(e_x, e_y))
-    return np.where(undefined, 0.0, degree), evpa
+    table, chi = _emission_table(polarisation)
+    # Orders first in memory: the still's per-order maps (orders, H, W) are then views.
+    per_order = np.zeros((3, shape[1], shape[0]))
+    totals = np.empty((5, shape[0]))
+    roll = math.radians(roll_deg)
+    arrays = (np.ascontiguousarray(r, dtype=float), np.ascontiguousarray(hits, dtype=np.bool_),
+              np.ascontiguousarray(inward, dtype=np.bool_),
+              np.ascontiguousarray(bundle.lam, dtype=float),
+              np.ascontiguousarray(bundle.eta, dtype=float),
+              np.ascontiguousarray(bundle.states, dtype=float),
+              np.ascontiguousarray(points[0], dtype=float).ravel(),
+              np.ascontiguousarray(points[1], dtype=float).ravel(),
+              np.ascontiguousarray(mu, dtype=float), np.ascontiguousarray(intensity, dtype=float),
+              float(spin), float(spin) * math.sin(math.radians(inclination_deg)), math.cos(roll),
+              math.sin(roll), np.empty((0, 4)) if screen is None else screen, table,
+              math.cos(chi), math.sin(chi), per_order, totals)
+    if shape[0] <= STOKES_BLOCK:
+        _stokes_kernel(0, shape[0], *arrays)
+    else:
+        _stokes_blocks(*arrays)
+    out = {name: per_order[k].T for k, name in enumerate(("stokes_i_order", "stokes_q_order",
+                                                          "stokes_u_order"))}
+    for row, name in enumerate(("stokes_i", "stokes_q", "stokes_u", "polarised_degree",
+                                "polarisation_angle")):
+        out[name] = totals[row]
+    return out
+
+
+@njit(cache=True)
+def _tabled_degree(table, mu):
+    """The degree at emission cosine mu from a table uniform in sqrt(mu) (NaN stays NaN)."""
+    if not (mu == mu):
+        return np.nan
+    last = table.size - 1
+    x = math.sqrt(min(max(mu, 0.0), 1.0)) * last
+    k = min(int(x), last - 1)
+    return table[k] + (x - k) * (table[k + 1] - table[k])
+
+
+@njit(cache=True)
+def _ray_side(states, n):
+    """The side s = sign(mu) of the equator a ray starts on (its first move if on it)."""
+    if states[n, 2] != 0.0:
+        return 1.0 if states[n, 2] > 0.0 else -1.0
+    if states[n, 3] != 0.0:
+        return 1.0 if states[n, 3] > 0.0 else -1.0
+    return 1.0
+
+
+# Rays per serial block of the Stokes pass.  A block of 2^17 rays is 1-3 ms of work; below
+# that a parallel region's start and closing barrier (numba's threads, waiting on one
+# another, for milliseconds on a loaded machine) cost more than they save.
+STOKES_BLOCK = 1 << 17
 
 
 @njit(cache=True, parallel=True)
-def _distant_evpa_kernel(kappa1, kappa2, nu, beta, cos_roll, sin_roll, degree, degree_out,
-                         evpa):
-    """Per crossing: the distant screen's E-vector, turned by the roll, as an IAU angle."""
-    half_pi = 0.5 * math.pi
-    for n in prange(kappa1.shape[0]):
-        norm = beta[n] * beta[n] + nu[n] * nu[n]
-        for j in range(kappa1.shape[1]):
-            k1, k2 = kappa1[n, j], kappa2[n, j]
-            if not (k1 != 0.0 or k2 != 0.0):
-                degree_out[n, j], evpa[n, j] = 0.0, np.nan   # along the normal: no E-vector
+def _stokes_blocks(r, hits, inward, lam, eta, states, alpha, beta, mu, intensity, a, a_sin_i,
+                   cos_roll, sin_roll, screen, table, cos_chi, sin_chi, per_order, totals):
+    """:func:`_stokes_kernel` over blocks of STOKES_BLOCK rays, in parallel."""
+    n_rays = r.shape[0]
+    for b in prange((n_rays + STOKES_BLOCK - 1) // STOKES_BLOCK):
+        _stokes_kernel(b * STOKES_BLOCK, min((b + 1) * STOKES_BLOCK, n_rays), r, hits, inward,
+                       lam, eta, states, alpha, beta, mu, intensity, a, a_sin_i, cos_roll,
+                       sin_roll, screen, table, cos_chi, sin_chi, per_order, totals)
+
+
+@njit(cache=True)
+def _stokes_kernel(start, stop, r, hits, inward, lam, eta, states, alpha, beta, mu, intensity,
+                   a, a_sin_i, cos_roll, sin_roll, screen, table, cos_chi, sin_chi, per_order,
+                   totals):
+    """Rays ``start:stop``, per crossing that shines: p(mu), kappa, the E-vector, I, Q, U.
+
+    The photon's signs at crossing j are those of :func:`crossing_kappa_signs`.
+    The E-vector (E_x, E_y) along the image's right and up gives
+    Q + iU = p I (E_y - i E_x)^2 / |E|^2 (EVPA = atan2(-E_x, E_y)).
+    ``per_order`` (3, orders, N): I, Q, U of each crossing (left as they are where
+    nothing shines: zeros); ``totals`` rows: I, Q, U summed over orders, the degree
+    and the angle (deg) of the sums.
+    """
+    n_orders = r.shape[1]
+    is_camera = screen.shape[0] > 0
+    for n in range(start, stop):
+        i_sum = q_sum = u_sum = 0.0
+        side = _ray_side(states, n)
+        nu = -(alpha[n] + a_sin_i)
+        for j in range(n_orders):
+            if not hits[n, j] or not (intensity[n, j] == intensity[n, j]):
                 continue
-            if not (k1 == k1 and k2 == k2):
-                degree_out[n, j], evpa[n, j] = degree[n, j], np.nan   # a skipped crossing
+            value = intensity[n, j]
+            per_order[0, j, n] = value
+            i_sum += value
+            p = _tabled_degree(table, mu[n, j])
+            if not (p != 0.0 and p == p):
                 continue
-            e_a = (beta[n] * k2 - nu[n] * k1) / norm
-            e_b = (beta[n] * k1 + nu[n] * k2) / norm
+            sign_theta = -side if j % 2 == 0 else side
+            k1, k2 = _surface_kappa(r[n, j], lam[n], eta[n], a, 1.0 if inward[n, j] else -1.0,
+                                    sign_theta, False)
+            k1, k2 = _turned_kappa(k1, k2, cos_chi, sin_chi)
+            if is_camera:
+                e_a = screen[n, 0] * k1 + screen[n, 1] * k2
+                e_b = screen[n, 2] * k1 + screen[n, 3] * k2
+            else:   # Connors, Piran & Stark (1980), eqs. 4-6, times beta^2 + nu^2
+                e_a = beta[n] * k2 - nu * k1
+                e_b = beta[n] * k1 + nu * k2
             e_x = cos_roll * e_a + sin_roll * e_b
             e_y = -sin_roll * e_a + cos_roll * e_b
-            angle = math.atan2(-e_x, e_y)
-            if angle <= -half_pi:
-                angle += math.pi
-            elif angle > half_pi:
-                angle -= math.pi
-            degree_out[n, j], evpa[n, j] = degree[n, j], angle
+            size = e_x * e_x + e_y * e_y
+            if not size > 0.0:
+                continue   # along the normal: no direction parallel to the surface
+            scale = p * value / size
+            q = scale * (e_y * e_y - e_x * e_x)
+            u = -2.0 * scale * e_x * e_y
+            per_order[1, j, n], per_order[2, j, n] = q, u
+            q_sum += q
+            u_sum += u
+        polarised = math.hypot(q_sum, u_sum)
+        totals[0, n], totals[1, n], totals[2, n] = i_sum, q_sum, u_sum
+        totals[3, n] = polarised / i_sum if i_sum > 0.0 else np.nan
+        totals[4, n] = math.degrees(0.5 * math.atan2(u_sum, q_sum)) if polarised > 0.0 else np.nan
 
 
-def _camera_screen(view, kappa1, kappa2, alpha, beta):
-    """(E_right, E_up) at a camera: solve kappa = c_r kappa(right) + c_u kappa(up) per pixel."""
+def _camera_screen(view, alpha, beta):
+    """Per pixel, the 2 x 2 map kappa -> (E_right, E_up) of a camera (N, 4), row-major.
+
+    Solves kappa = c_r kappa(right) + c_u kappa(up) for the pixel's screen vectors.
+    """
     k, tetrad, n = camera_photons(alpha, beta, view.spin, view.distance, view.inclination_deg,
                                   view.frame)
     theta = math.radians(view.inclination_deg)
     (r1, r2), (u1, u2) = camera_screen_vectors(k, tetrad, n, view.distance, theta, view.spin)
-    det = (r1 * u2 - r2 * u1)[:, None]
+    det = r1 * u2 - r2 * u1
     with np.errstate(invalid="ignore", divide="ignore"):
-        e_right = (kappa1 * u2[:, None] - kappa2 * u1[:, None]) / det
-        e_up = (r1[:, None] * kappa2 - r2[:, None] * kappa1) / det
-    return e_right, e_up
+        return np.ascontiguousarray(np.stack([u2, -u1, -r2, r1], axis=1) / det[:, None])

@@ -31,19 +31,30 @@ def image_spectrum(law, nu, r, g, weight, hits, pixel_solid_angle_sr):
     law : NovikovThorne
     nu : ndarray (F,)
         Observed frequencies in Hz.
-    r, g, weight : ndarray (N, orders)
-        Crossing radii, redshift factors and weights (limb darkening times the
-        image-plane area each sample stands for).
+    r, g : ndarray (N, orders)
+        Crossing radii and redshift factors.
+    weight : ndarray (N, orders) or (N, orders, K)
+        Weights (limb darkening times the image-plane area each sample stands
+        for); with a last axis, K spectra at once (signed weights allowed, such
+        as the Stokes Q and U weights p cos 2 EVPA, p sin 2 EVPA).
     hits : ndarray of bool (N, orders)
     pixel_solid_angle_sr : float
         Solid angle of a unit of ``weight`` (a pixel of weight 1, or 1 M^2).
+
+    Returns
+    -------
+    ndarray (F,) or (F, K)
     """
     t_obs = (g * law.colour_temperature(r))[hits]
     w = weight[hits]
-    keep = np.isfinite(t_obs) & (t_obs > 0) & (w > 0)
+    keep = np.isfinite(t_obs) & (t_obs > 0)
+    if w.ndim == 1:
+        keep &= w > 0
+    else:
+        keep &= np.isfinite(w).all(axis=1) & (w != 0.0).any(axis=1)
     t_obs, w = t_obs[keep], w[keep]
     nu = np.asarray(nu, dtype=float)
-    flux = np.zeros(nu.shape)
+    flux = np.zeros(nu.shape + w.shape[1:])
     step = max(1, _CHUNK_ELEMENTS // max(1, t_obs.size))
     for start in range(0, nu.size, step):
         block = nu[start:start + step]

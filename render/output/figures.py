@@ -45,8 +45,14 @@ def read_still(path):
     missing = [name for name in fields if name not in arrays]
     if missing:
         raise UsageError(f"{str(path)!r} is not a still's NPZ (missing {', '.join(missing)})")
+    # A spectrum's or line's columns were saved as 1-D '<table>_<column>' arrays.
+    tables = {}
+    for name in [n for n in arrays if arrays[n].ndim == 1]:
+        kind, _, column = name.partition("_")
+        if kind in ("spectrum", "line"):
+            tables.setdefault(kind, {})[column] = arrays.pop(name)
     return StillResult(**{name: arrays.pop(name) for name in fields}, metadata=metadata,
-                       products=arrays)
+                       products=arrays, tables=tables)
 
 
 def _first_shining(values, on_disk):

@@ -392,6 +392,9 @@ def write_still(result, folder="outputs", overwrite=False):
                   metadata={"Software": f"nullray {result.metadata['version']}",
                             "nullray-scene": json.dumps(result.metadata["scene"], sort_keys=True)})
     if "npz" in paths:
-        write_npz(paths["npz"], result.maps(), result.metadata, overwrite,
+        # A spectrum or line table rides along as '<table>_<column>' arrays.
+        columns = {f"{kind}_{name}": np.asarray(column) for kind, table in result.tables.items()
+                   for name, column in table.items()}
+        write_npz(paths["npz"], result.maps() | columns, result.metadata, overwrite,
                   compression=result.metadata["scene"]["output"]["npz_compression"])
     return paths

@@ -31,7 +31,11 @@ The primary HDU holds the mode's main map (monochromatic: I_nu; bolometric
 and true colour: bolometric intensity; line: line intensity); image
 extensions hold the others (``FLUXPIX``, Jy per pixel; ``REDSHIFT``, g of the
 first crossing), and a binary table ``SCENE`` holds the scene as YAML, one
-row per line.  FITS rows run upwards, so the arrays are flipped vertically.  The sky axes are ``RA---TAN`` / ``DEC--TAN`` with CRVAL = 0,
+row per line; the spectrum and line modes add their table as a binary table
+``SPECTRUM`` or ``LINE`` (one row per bin, the CSV's columns with their units;
+a polarised spectrum's Stokes Q, U, degree and IAU angle among them).  FITS
+rows run upwards, so the arrays are flipped vertically.  The sky axes are
+``RA---TAN`` / ``DEC--TAN`` with CRVAL = 0,
 CRPIX at the image centre and CDELT1 = -pixel scale (east to the left, the
 FITS habit), CDELT2 = +pixel scale, in degrees; +x of the image is the
 Bardeen alpha axis.  Header cards: BUNIT (a FITS unit string astropy reads,
@@ -56,7 +60,7 @@ from ..scene.loader import scene_from_dict
 
 __all__ = ["product_paths", "write_products", "write_fits", "write_png16", "write_npy",
            "write_table_csv", "write_table_sidecar", "TABLE_COLUMNS", "fits_hdus",
-           "scene_table_hdu", "read_rows"]
+           "scene_table_hdu", "table_hdus", "COLUMN_UNITS", "read_rows"]
 
 
 def product_paths(scene_document, folder):
@@ -114,9 +118,9 @@ TABLE_COLUMNS = {
         "flux_flat_jy": "F_nu of the same local emission in flat space, Jy",
         "nufnu_relativistic_erg_s_cm2": "nu F_nu, ray-traced, erg s^-1 cm^-2",
         "nufnu_flat_erg_s_cm2": "nu F_nu in flat space, erg s^-1 cm^-2",
-        "stokes_q_jy": "disk-integrated Q_nu, Jy (summed over the picture's pixels)",
-        "stokes_u_jy": "disk-integrated U_nu, Jy (summed over the picture's pixels)",
-        "polarised_degree": "sqrt(Q_nu^2 + U_nu^2) / F_nu of the picture's pixels",
+        "stokes_q_jy": "disk-integrated Stokes Q_nu, Jy (Stokes I_nu: flux_relativistic_jy)",
+        "stokes_u_jy": "disk-integrated Stokes U_nu, Jy",
+        "polarised_degree": "degree of linear polarisation sqrt(Q_nu^2 + U_nu^2) / F_nu",
         "polarisation_angle_deg": "IAU polarisation angle, from north through east, deg",
     },
     "line": {
@@ -361,6 +365,38 @@ def scene_table_hdu(metadata):
     return hdu
 
 
+# FITS units (FITS Standard 4.0, sec. 4.3) of the table columns; a missing name has none.
+COLUMN_UNITS = {
+    "frequency_hz": "Hz", "energy_kev": "keV", "energy_low_kev": "keV",
+    "energy_high_kev": "keV", "flux_relativistic_jy": "Jy", "flux_flat_jy": "Jy",
+    "nufnu_relativistic_erg_s_cm2": "erg s-1 cm-2", "nufnu_flat_erg_s_cm2": "erg s-1 cm-2",
+    "stokes_q_jy": "Jy", "stokes_u_jy": "Jy", "polarisation_angle_deg": "deg",
+    "counts_per_kev": "keV-1", "photon_flux_per_kev": "ph s-1 cm-2 keV-1",
+    "energy_flux_per_kev": "erg s-1 cm-2 keV-1"}
+
+
+def table_hdus(result):
+    """Binary-table extensions ``SPECTRUM`` / ``LINE`` of a still's tables (one row per bin).
+
+    Column names are the CSV's in capitals, with their units (:data:`COLUMN_UNITS`;
+    meanings in :data:`TABLE_COLUMNS` and the CSV's JSON sidecar); a polarisation
+    angle follows the IAU convention (POLCONV).
+    """
+    from astropy.io import fits
+
+    hdus = []
+    for kind, table in result.tables.items():
+        # Big-endian, as FITS stores them, so that the bytes stream as they are.
+        columns = [fits.Column(name=name.upper(), format="D", unit=COLUMN_UNITS.get(name),
+                               array=np.asarray(values, dtype=">f8"))
+                   for name, values in table.items()]
+        hdu = fits.BinTableHDU.from_columns(columns, name=kind.upper())
+        if "polarisation_angle_deg" in table:
+            hdu.header["POLCONV"] = ("IAU", "angle from north (up) through east (left)")
+        hdus.append(hdu)
+    return hdus
+
+
 def _polarisation_layout(result, header, unit, what):
     """The Stokes I, Q, U, degree and angle HDUs (IAU angle: from north through east)."""
     layout = []
@@ -387,7 +423,7 @@ def fits_hdus(result):
         kind = fits.PrimaryHDU if k == 0 else fits.ImageHDU
         hdus.append(kind(np.ascontiguousarray(np.flipud(data)), header=header))
     hdus.append(scene_table_hdu(result.metadata))
-    return fits.HDUList(hdus)
+    return fits.HDUList(hdus + table_hdus(result))
 
 
 def write_fits(path, result, overwrite=False):
@@ -396,7 +432,8 @@ def write_fits(path, result, overwrite=False):
     Each map goes through astropy's streaming writer (``astropy.io.fits.StreamingHDU``):
     its header, then the rows as float64, flipped so that FITS row 1 is the
     bottom of the image, a block at a time, so no whole map is held in memory.
-    The small ``SCENE`` table (:func:`scene_table_hdu`) follows, streamed the same way.
+    The small ``SCENE`` table (:func:`scene_table_hdu`) follows, streamed the same way,
+    then the spectrum or line table, if any (:func:`table_hdus`).
 
     References
     ----------
@@ -408,7 +445,6 @@ def write_fits(path, result, overwrite=False):
     height, width = result.fate.shape
     rows = _block_rows(result, 8 * width)
     table = scene_table_hdu(result.metadata)
-    table_bytes = np.frombuffer(table.data.tobytes(), dtype=np.uint8)
 
     with atomic_path(path, overwrite) as tmp:
         for header, array, index in layout:
@@ -421,12 +457,23 @@ def write_fits(path, result, overwrite=False):
                     del block
             finally:
                 stream.close()
-        stream = fits.StreamingHDU(str(tmp), table.header)
-        try:
-            stream.write(table_bytes)
-        finally:
-            stream.close()
+        extensions = [(table, table.data.tobytes())]   # text: no byte order
+        extensions += [(hdu, _big_endian_rows(hdu.data)) for hdu in table_hdus(result)]
+        for extension, data in extensions:   # small: streamed whole
+            stream = fits.StreamingHDU(str(tmp), extension.header)
+            try:
+                stream.write(np.frombuffer(data, dtype=np.uint8))
+            finally:
+                stream.close()
     return Path(path)
+
+
+def _big_endian_rows(data):
+    """The bytes of a table of float64 columns as FITS stores them (big-endian rows)."""
+    rows = np.empty(len(data), dtype=[(name, ">f8") for name in data.names])
+    for name in data.names:
+        rows[name] = data[name]
+    return rows.tobytes()
 
 
 def _plot(path, overwrite, figure_maker, table, metadata):
