@@ -174,3 +174,12 @@ def test_jacobi_by_doubling_against_mpmath(band):
                 # Within K no reflection is needed (quarter = 0 means "|u| <= K").
                 assert np.allclose(elliptic.ellipj_doubling(u, m, 0.0), ours, rtol=0,
                                    atol=TOL)
+
+
+def test_complete_first_kind_by_the_agm_against_scipy():
+    # scipy.special.ellipkm1 takes the complement 1 - m as ellipk_agm does (cephes, an
+    # independent implementation); m from -1e3 to 1 - 1e-12, where the AGM runs longest.
+    # Tolerance TOL as for the other integrals (the AGM is exact to rounding per step).
+    for m1 in np.concatenate([10.0 ** RNG.uniform(-12.0, 3.0, 400), [1.0, 2.0]]):
+        assert abs(elliptic.ellipk_agm(m1) / sp.ellipkm1(m1) - 1.0) <= TOL, m1
+    assert elliptic.ellipk_agm(0.0) == math.inf and math.isnan(elliptic.ellipk_agm(-1.0))
