@@ -252,8 +252,30 @@ class Shaded:
 
 
 def _weights(obs, r, eta, g, energy_ratio, hits):
-    mu = emission_cosine(r, eta, g, energy_ratio)
-    return mu, np.where(hits, limb_darkening(mu, obs.limb), 0.0)
+    """(mu, limb weight) of the crossings: mu at the shining ones (NaN elsewhere), weight 0 elsewhere."""
+    shape = np.shape(r)
+    mu = np.full(shape, np.nan)
+    mu[hits] = emission_cosine(np.asarray(r)[hits], np.broadcast_to(eta, shape)[hits],
+                               np.asarray(g)[hits], np.broadcast_to(energy_ratio, shape)[hits])
+    weight = np.zeros(shape)
+    weight[hits] = limb_darkening(mu[hits], obs.limb)
+    return mu, weight
+
+
+def on_lit(function, r, hits, fill=0.0):
+    """``function(r)`` evaluated at the shining crossings only, ``fill`` elsewhere.
+
+    Most crossing slots of an image are empty (no such order) or off the disk;
+    emission laws (a Page–Thorne flux, a temperature) are evaluated where they shine.
+
+    Examples
+    --------
+    >>> on_lit(np.sqrt, np.array([4.0, 9.0]), np.array([True, False])).tolist()
+    [2.0, 0.0]
+    """
+    out = np.full(np.shape(r), fill)
+    out[hits] = function(np.asarray(r)[hits])
+    return out
 
 
 def _summed(values, hits):
@@ -302,7 +324,7 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
     mu, weight = _weights(obs, r, bundle.eta[:, None], g, bundle.energy_ratio[:, None], hits)
     with np.errstate(invalid="ignore"):
-        per_crossing = observed_bolometric(g, law.intensity(r)) * weight
+        per_crossing = observed_bolometric(g, on_lit(law.intensity, r, hits)) * weight
     bolometric = _summed(per_crossing, hits)
     info = dict(obs.info)
     info.update(pixel_scale(scene))
@@ -572,16 +594,22 @@ def pixel_scale(scene):
             "pixel_scale_m": scene["observer.field_of_view"] / scene["image.width"]}
 
 
-def colour_xyz(law, r, g, weight):
-    """XYZ (N, 3) of the observed colour-corrected blackbody light, summed over orders."""
+def colour_xyz(law, r, g, weight, hits=None):
+    """XYZ (N, 3) of the observed colour-corrected blackbody light, summed over orders.
 
-    t_obs = g * law.colour_temperature(r)
+    With ``hits`` (N, orders) only those crossings shine (the temperature of the
+    others is not even evaluated); without, every crossing with a finite g.
+    """
+    if hits is None:
+        t_obs = g * law.colour_temperature(r)
+    else:
+        t_obs = np.asarray(g) * on_lit(law.colour_temperature, r, hits, np.nan)
     dilution = law.colour_correction ** -4
     return blackbody_xyz_sum(t_obs, np.broadcast_to(weight, t_obs.shape) * dilution)
 
 
 def _true_colour(obs, scene, r, g, weight, hits):
-    xyz = colour_xyz(obs.law, r, np.where(hits, g, np.nan), weight)
+    xyz = colour_xyz(obs.law, r, g, weight, hits)
     reference = exposure_white(obs, scene.inner_radius, scene["disk.outer_radius"])
     if reference is None:   # the automatic exposure: the image's own white
         reference = automatic_reference_luminance(xyz[:, 1])
