@@ -183,3 +183,12 @@ def test_complete_first_kind_by_the_agm_against_scipy():
     for m1 in np.concatenate([10.0 ** RNG.uniform(-12.0, 3.0, 400), [1.0, 2.0]]):
         assert abs(elliptic.ellipk_agm(m1) / sp.ellipkm1(m1) - 1.0) <= TOL, m1
     assert elliptic.ellipk_agm(0.0) == math.inf and math.isnan(elliptic.ellipk_agm(-1.0))
+
+
+def test_paired_carlson_first_kind_equals_two_single_ones():
+    # elliprf_pair interleaves two duplications; each must equal scipy.special.elliprf
+    # (an independent implementation) to TOL, whatever the other's arguments.
+    for first, second in zip(_args(500, 3), _args(500, 3)):
+        one, two = elliptic.elliprf_pair(*first, *second)
+        assert abs(one / sp.elliprf(*first) - 1.0) <= TOL, first
+        assert abs(two / sp.elliprf(*second) - 1.0) <= TOL, second

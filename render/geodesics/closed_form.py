@@ -78,8 +78,8 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from .elliptic import (FAST_ARITHMETIC, elliprf, elliprf_rd_rj, elliprj, ellipj_doubling,
-                       ellipj_work, ellipk_agm)
+from .elliptic import (FAST_ARITHMETIC, elliprf, elliprf_pair, elliprf_rd_rj, elliprj,
+                       ellipj_doubling, ellipj_work, ellipk_agm)
 from .radial_integrals import complex_time, real_time
 from .integrator import (FATE_CAPTURED, FATE_DISK, FATE_ESCAPED, FATE_UNRESOLVED,
                          parallel_kernel_call)
@@ -227,6 +227,17 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         # and by the integrator's fates over whole images): all are captured.
         return FATE_CAPTURED, 0, np.nan, np.nan
 
+    # --- polar parameters (NaN for a ray in the plane, which never uses them) -----
+    b_pol = eta + lam * lam - spin * spin
+    nu = 0.5 * (b_pol + math.sqrt(b_pol * b_pol + 4.0 * spin * spin * eta))
+    u_plus = eta / nu
+    m_pol = -spin * spin * u_plus / nu
+    one_minus_u_plus = lam * lam / (spin * spin + nu)
+    root_nu = math.sqrt(nu)
+    x_o = min(abs(cos_o) / math.sqrt(u_plus), 1.0)
+    y_o = 1.0 - m_pol * x_o * x_o
+    w_o = 1.0 - x_o * x_o
+
     # --- radial motion: class, elliptic parameter, sigma(X) and its end ----------
     if real34 and r4 > r_capture:
         cls = CLASS_TURNING
@@ -250,7 +261,8 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         n_char = r41 / r31
         dsigma_dx = 2.0 / math.sqrt(r31 * r42)
         s2 = r31 / r41
-        f_inf = math.sqrt(s2) * elliprf(r43 / r41, r43 / r41 + k1 * s2, 1.0)
+        f_inf, rf_o = elliprf_pair(r43 / r41, r43 / r41 + k1 * s2, 1.0, w_o, y_o, 1.0)
+        f_inf *= math.sqrt(s2)
         c_a, c_b, c_c, c_d = r31, r41, r4 * r31, r3 * r41
         # X = sigma / dsigma_dx - f_inf runs from -f_inf (infinity) through 0 (r4).
         x_start = -f_inf
@@ -273,7 +285,9 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         dsigma_dx = 1.0 / math.sqrt(big_a * big_b)
         c_inf = (big_a - big_b) / (big_a + big_b)
         s_inf2 = 1.0 - c_inf * c_inf
-        f_inf = math.sqrt(s_inf2) * elliprf(c_inf * c_inf, c_inf * c_inf + k1 * s_inf2, 1.0)
+        f_inf, rf_o = elliprf_pair(c_inf * c_inf, c_inf * c_inf + k1 * s_inf2, 1.0, w_o, y_o,
+                                   1.0)
+        f_inf *= math.sqrt(s_inf2)
         quarter = ellipk_agm(k1)
         if c_inf < 0.0:
             # arccos beyond pi/2: F(pi - phi) = 2K - F(phi).
@@ -309,20 +323,10 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         phi_end = phi_o - phi_scale * (phi_out - phi_inf) - lam * sigma_end
         return FATE_ESCAPED, 0, 0.5 * math.pi, phi_end % (2.0 * math.pi)
 
-    # --- polar motion ---------------------------------------------------------
-    b_pol = eta + lam * lam - spin * spin
-    nu = 0.5 * (b_pol + math.sqrt(b_pol * b_pol + 4.0 * spin * spin * eta))
-    u_plus = eta / nu
-    m_pol = -spin * spin * u_plus / nu
-    one_minus_u_plus = lam * lam / (spin * spin + nu)
-    root_nu = math.sqrt(nu)
-    x_o = min(abs(cos_o) / math.sqrt(u_plus), 1.0)
-    y_o = 1.0 - m_pol * x_o * x_o
-    w_o = 1.0 - x_o * x_o
+    # --- polar motion (F(asin x_o | m) is computed with the radial F at infinity) ---
     with_pi = lam != 0.0
     # K(m) by the AGM (a fifth of R_F's cost); the third- and second-kind polar
     # integrals of the azimuth and the delay come later, only if a crossing needs them.
-    rf_o = elliprf(w_o, y_o, 1.0)
     rf_c = ellipk_agm(1.0 - m_pol)
     polar_ready = False
     pi_c = 0.0

@@ -252,13 +252,23 @@ class Shaded:
 
 
 def _weights(obs, r, eta, g, energy_ratio, hits):
-    """(mu, limb weight) of the crossings: mu at the shining ones (NaN elsewhere), weight 0 elsewhere."""
+    """(mu, limb weight) of the crossings: mu at the shining ones (NaN elsewhere), weight 0 elsewhere.
+
+    ``eta`` and ``energy_ratio`` are per ray (N, 1) or per crossing (N, orders).
+    """
     shape = np.shape(r)
+    rows, cols = np.nonzero(hits)
+
+    def lit(values):
+        values = np.asarray(values)
+        return values[rows, cols] if values.ndim == 2 and values.shape[1] == shape[1] \
+            else np.broadcast_to(values, shape)[rows, cols]
+
     mu = np.full(shape, np.nan)
-    mu[hits] = emission_cosine(np.asarray(r)[hits], np.broadcast_to(eta, shape)[hits],
-                               np.asarray(g)[hits], np.broadcast_to(energy_ratio, shape)[hits])
+    mu[rows, cols] = emission_cosine(np.asarray(r)[rows, cols], lit(eta), lit(g),
+                                     lit(energy_ratio))
     weight = np.zeros(shape)
-    weight[hits] = limb_darkening(mu[hits], obs.limb)
+    weight[rows, cols] = limb_darkening(mu[rows, cols], obs.limb)
     return mu, weight
 
 
