@@ -192,3 +192,18 @@ def test_paired_carlson_first_kind_equals_two_single_ones():
         one, two = elliptic.elliprf_pair(*first, *second)
         assert abs(one / sp.elliprf(*first) - 1.0) <= TOL, first
         assert abs(two / sp.elliprf(*second) - 1.0) <= TOL, second
+
+
+def test_complete_k_d_pi_by_the_agm_against_mpmath():
+    # mpmath at 40 digits (an independent implementation; (K - E)/m at that precision
+    # has no cancellation to speak of).  K and D to TOL; Pi to TOL for 1 - n >= 1e-2,
+    # the only range the closed form uses it in (the sum n/(1 - n) sum Q_j amplifies
+    # rounding by ~1/(1 - n); render.geodesics.closed_form takes R_J below).
+    with mpmath.workdps(40):
+        for m in np.concatenate([-(10.0 ** RNG.uniform(-8.0, 3.0, 40)), RNG.uniform(0, 0.99, 10)]):
+            for n in (-3.0, 0.0, RNG.uniform(0.0, 0.99), 0.99):
+                k, d, pi = elliptic.complete_kdpi(m, n, 1.0 - n)
+                big_k, big_e = mpmath.ellipk(m), mpmath.ellipe(m)
+                assert abs(k / float(big_k) - 1.0) <= TOL, (m, n)
+                assert abs(d / float((big_k - big_e) / m) - 1.0) <= TOL, (m, n)
+                assert abs(pi / float(mpmath.ellippi(n, m)) - 1.0) <= TOL, (m, n)

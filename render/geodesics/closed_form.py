@@ -78,8 +78,8 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from .elliptic import (FAST_ARITHMETIC, elliprf, elliprf_pair, elliprf_rd_rj, elliprj,
-                       ellipj_doubling, ellipj_work, ellipk_agm)
+from .elliptic import (FAST_ARITHMETIC, complete_kdpi, elliprf, elliprf_pair, elliprf_rd_rj,
+                       elliprj, ellipj_doubling, ellipj_work, ellipk_agm)
 from .radial_integrals import complex_time, real_time
 from .integrator import (FATE_CAPTURED, FATE_DISK, FATE_ESCAPED, FATE_UNRESOLVED,
                          parallel_kernel_call)
@@ -98,7 +98,9 @@ MAPS_NONE = 0       # none: an image needs only r (and g from it)
 MAPS_DISK = 1       # the recorded crossings between r_in and r_out (on the disk)
 MAPS_ALL = 2        # every recorded crossing
 
-_SCRATCH = 32   # two AGM level arrays for the Jacobi functions
+_SCRATCH = 32
+# Below this 1 - u+ the AGM's complete Pi(u+ | m) would lose more than two digits.
+_AGM_PI_LIMIT = 1e-2   # two AGM level arrays for the Jacobi functions
 
 
 @njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
@@ -193,14 +195,19 @@ def _radial_parts(cls, x, s, c, d, r, k, n, r1, r2, r3, r4, big_a, big_b, c_a, c
 def _polar_map_integrals(m_pol, u_plus, one_minus_u_plus, x_o, w_o, y_o):
     """(pi_c, pi_o, d_c, d_o): the polar third- and second-kind integrals of the maps.
 
-    Pi(u+ | m), Pi(u+; asin x_o | m), D(m)/... as R_F + u+ R_J / 3 and R_D / 3 (DLMF
-    19.25.13-14), each pair from one duplication with its R_F (Carlson 1995, sec. 2).
+    Complete: Pi(u+ | m) and D(m) from one arithmetic-geometric mean
+    (:func:`render.geodesics.elliptic.complete_kdpi`); its Pi loses about
+    log10(1 / (1 - u+)) digits, so below 1 - u+ = 1e-2 (|lam| small) Pi comes from
+    Carlson's R_J instead.  Incomplete, at the observer: Pi(u+; asin x_o | m) and
+    D(asin x_o | m) as R_F + u+ R_J / 3 and R_D / 3 (DLMF 19.25.13-14) from one
+    duplication (Carlson 1995, sec. 2).
     """
-    rf_c, rd_c, rj_c = elliprf_rd_rj(0.0, 1.0 - m_pol, 1.0, one_minus_u_plus)
+    k_c, d_c, pi_c = complete_kdpi(m_pol, u_plus, one_minus_u_plus)
+    if one_minus_u_plus < _AGM_PI_LIMIT:
+        pi_c = k_c + u_plus * elliprj(0.0, 1.0 - m_pol, 1.0, one_minus_u_plus) / 3.0
     rf_o, rd_o, rj_o = elliprf_rd_rj(w_o, y_o, 1.0, one_minus_u_plus + u_plus * w_o)
     x3 = x_o * x_o * x_o
-    return (rf_c + u_plus * rj_c / 3.0, x_o * rf_o + u_plus * x3 * rj_o / 3.0, rd_c / 3.0,
-            x3 * rd_o / 3.0)
+    return pi_c, x_o * rf_o + u_plus * x3 * rj_o / 3.0, d_c, x3 * rd_o / 3.0
 
 
 @njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
