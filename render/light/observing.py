@@ -276,7 +276,7 @@ def on_lit(function, r, hits, fill=0.0):
     """``function(r)`` evaluated at the shining crossings only, ``fill`` elsewhere.
 
     Most crossing slots of an image are empty (no such order) or off the disk;
-    emission laws (a Page–Thorne flux, a temperature) are evaluated where they shine.
+    per-radius quantities (a colour temperature) are evaluated where they shine.
 
     Examples
     --------
@@ -334,7 +334,10 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
     mu, weight = _weights(obs, r, bundle.eta[:, None], g, bundle.energy_ratio[:, None], hits)
     with np.errstate(invalid="ignore"):
-        per_crossing = observed_bolometric(g, on_lit(law.intensity, r, hits)) * weight
+        # The law sees every crossing slot (a law modulated per crossing, as a moving
+        # pattern's, needs their shape), NaN where none shines: its kernels skip those.
+        emitted = np.where(hits, law.intensity(np.where(hits, r, np.nan)), 0.0)
+        per_crossing = observed_bolometric(g, emitted) * weight
     bolometric = _summed(per_crossing, hits)
     info = dict(obs.info)
     info.update(pixel_scale(scene))
