@@ -102,7 +102,7 @@ def _interleaved(functions, repeat, numba):
 
 
 def _rates(label, times, pixel_orders):
-    """The figures of one variant: 1 thread (per CPU-second), 2 threads per core and per CPU-second."""
+    """One variant's figures: 1 thread per CPU-second; 2 threads per core and per CPU-second."""
     single_wall, single_cpu = times[(label, 1)]
     wall, cpu = times[(label, max(THREAD_COUNTS))]
     return {f"{label}_single_thread_seconds": round(single_wall, 4),

@@ -98,9 +98,9 @@ MAPS_NONE = 0       # none: an image needs only r (and g from it)
 MAPS_DISK = 1       # the recorded crossings between r_in and r_out (on the disk)
 MAPS_ALL = 2        # every recorded crossing
 
-_SCRATCH = 32
+_SCRATCH = 32   # two AGM level arrays for the Jacobi functions
 # Below this 1 - u+ the AGM's complete Pi(u+ | m) would lose more than two digits.
-_AGM_PI_LIMIT = 1e-2   # two AGM level arrays for the Jacobi functions
+_AGM_PI_LIMIT = 1e-2
 
 
 @njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
@@ -539,8 +539,8 @@ def closed_form_bundle(alpha, beta, bundle, spin, inclination_deg, *, n_record,
     want_maps : bool or "disk"
         Compute ``phi`` and ``delay`` of every recorded crossing (True), of those on
         the disk only (``"disk"``: r_in <= r <= r_out, NaN elsewhere), or of none
-        (False: NaN).  An image needs only r (and g from it); the two maps cost
-        about twice what r does.
+        (False: NaN).  An image needs only r (and g from it); the two maps take
+        two to three times as long as r alone.
 
     Returns
     -------

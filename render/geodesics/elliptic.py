@@ -32,9 +32,9 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["elliprf", "elliprd", "elliprj", "elliprc", "ellipk", "ellipk_agm", "complete_kdpi", "elliprf_pair", "ellipf",
-           "ellipe", "ellipd", "ellippi", "ellipj", "ellipj_work", "ellipj_doubling",
-           "elliprd_rj3", "elliprf_rd_rj"]
+__all__ = ["elliprf", "elliprd", "elliprj", "elliprc", "ellipk", "ellipk_agm", "complete_kdpi",
+           "elliprf_pair", "ellipf", "ellipe", "ellipd", "ellippi", "ellipj", "ellipj_work",
+           "ellipj_doubling", "elliprd_rj3", "elliprf_rd_rj"]
 
 # Floating-point contraction (FMA), reciprocal multiplication and sign-of-zero freedom
 # in the elliptic kernels (and those built on them): ~15% faster, results unchanged

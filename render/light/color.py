@@ -18,7 +18,8 @@ import numpy as np
 from numba import njit, prange
 from .cie import xyz_to_linear_srgb_matrix
 
-__all__ = ["SRGB_LUMINANCE", "tone_map", "srgb_encode", "srgb_pixels", "to_uint8", "to_uint16", "xyz_to_linear_srgb",
+__all__ = ["SRGB_LUMINANCE", "tone_map", "srgb_encode", "srgb_pixels", "to_uint8", "to_uint16",
+           "xyz_to_linear_srgb",
            "desaturate_into_gamut", "expose_true_colour", "automatic_reference_luminance"]
 
 # Luminance Y of linear sRGB: Y = 0.2126 R + 0.7152 G + 0.0722 B (IEC 61966-2-1, the

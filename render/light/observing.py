@@ -252,7 +252,7 @@ class Shaded:
 
 
 def _weights(obs, r, eta, g, energy_ratio, hits):
-    """(mu, limb weight) of the crossings: mu at the shining ones (NaN elsewhere), weight 0 elsewhere.
+    """(mu, limb weight) of the crossings: mu where they shine (else NaN), weight else 0.
 
     ``eta`` and ``energy_ratio`` are per ray (N, 1) or per crossing (N, orders).
     """
