@@ -75,7 +75,7 @@ def srgb_pixels(linear):
     Examples
     --------
     >>> [a.tolist() for a in srgb_pixels(np.array([0.0, 0.5, 1.0]))]
-    [[0, 188, 255], [0, 48298, 65535]]
+    [[0, 188, 255], [0, 48192, 65535]]
     """
     v = np.ascontiguousarray(linear, dtype=float)
     out8 = np.empty(v.shape, dtype=np.uint8)
