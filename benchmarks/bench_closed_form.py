@@ -12,9 +12,8 @@ pixel-orders per second
     the orders n = 0, 1, 2 recorded (every crossing counted, the escape direction
     not computed, as a still render does).  A "pixel-order" is one (pixel, n)
     pair computed, whether or not the ray has an n-th crossing (pixels x 3).
-    Medians of ``--repeat`` runs
-    after a warm-up; process CPU time is reported beside wall time (on a shared
-    machine CPU-seconds vary much less).
+    Medians of ``--repeat`` runs after a warm-up; process CPU time is reported
+    beside wall time (on a shared machine CPU-seconds vary much less).
 ratio to the integrator
     :func:`render.geodesics.tracing.trace_bundle` on the same rays and orders at the
     default tolerance 1e-9, timed the same way.  Like for like, both fill the
@@ -38,10 +37,9 @@ image only
 threads
     Every closed-form figure is measured at 1 thread and at 2 threads
     (``numba.set_num_threads``), the two alternating within each repeat so that
-    both see the same load: ``*_single_thread_*`` (1 thread, per CPU-second: robust to
-    other work on the machine), ``*_per_core``
-    (2 threads: pixel-orders / wall / threads) and ``*_per_cpu_second`` (2 threads:
-    pixel-orders / process CPU time).  The integrator and the 4K stills run at the
+    both see the same load: ``*_single_thread_*`` (1 thread, per CPU-second: robust
+    to other work on the machine), ``*_per_core`` (2 threads: pixel-orders / wall /
+    threads) and ``*_per_cpu_second`` (2 threads: pixel-orders / process CPU time).  The integrator and the 4K stills run at the
     process's thread count.
 maps on the disk only
     ``want_maps="disk"``: phi and the delay only for crossings between the ISCO and
@@ -49,8 +47,7 @@ maps on the disk only
 
 Targets (issue 14): >= 5,000,000 pixel-orders per CPU-second, image only; the 4K
 true-colour still WITH the maps in < 5 s on 2 cores.  ``within_targets`` takes both;
-the older targets (issue 6: >= 1e6 per core with the maps, >= 20x the integrator,
-4K image only < 10 s) are reported beside them.
+issue 6's ratio target (>= 20x the integrator) is reported beside them.
 """
 
 import argparse
@@ -62,8 +59,8 @@ import time
 
 import numpy as np
 
+# Measure this checkout's render, not an installed copy.
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
-# (this checkout's render, not an installed copy)
 
 TARGET_PIXEL_ORDERS_PER_CPU_SECOND = 5_000_000.0
 TARGET_4K_WITH_MAPS_SECONDS = 5.0
