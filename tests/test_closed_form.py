@@ -323,6 +323,29 @@ def test_closed_form_bundle_raw_keys_match_trace_bundle():
     assert np.array_equal(raw_cf["fate"], raw_int["fate"])
 
 
+def test_maps_on_the_disk_only_are_the_full_maps_there():
+    # want_maps="disk" computes phi and the delay only for crossings between r_in and
+    # r_out: there they are the full maps' values (the same formulas, common practice),
+    # elsewhere NaN; r and the fates do not depend on the maps at all.
+    alpha, beta = np.meshgrid(np.linspace(-14.0, 14.0, 9), np.linspace(-14.0, 14.0, 9))
+    alpha, beta = alpha.ravel(), beta.ravel()
+    bundle = distant_observer_rays(alpha, beta, 0.9, 60.0)
+    common = dict(n_record=3, r_in=4.0, r_out=9.0, want_end=False, chunk_rays=32)
+    full = closed_form_bundle(alpha, beta, bundle, 0.9, 60.0, want_maps=True, **common)
+    disk = closed_form_bundle(alpha, beta, bundle, 0.9, 60.0, want_maps="disk", **common)
+    none = closed_form_bundle(alpha, beta, bundle, 0.9, 60.0, want_maps=False, **common)
+    on = (full["r"] >= 4.0) & (full["r"] <= 9.0)
+    assert 0 < on.sum() < np.isfinite(full["r"]).sum()
+    for name in ("phi", "delay"):
+        assert np.array_equal(disk[name][on], full[name][on])
+        assert np.isnan(disk[name][~on]).all() and np.isnan(none[name]).all()
+    for name in ("r", "fate", "n_crossings", "inward"):
+        assert np.array_equal(disk[name], full[name], equal_nan=True)
+        assert np.array_equal(none[name], full[name], equal_nan=True)
+    with pytest.raises(ValueError, match="want_maps"):
+        closed_form_bundle(alpha, beta, bundle, 0.9, 60.0, want_maps="all", **common)
+
+
 def test_render_still_method_choice_and_agreement(small_scene):
     # The same still by both methods: intensities from r and g agree to 1e-7 relative
     # where both put the crossing on the same side of the disk edges (common practice:

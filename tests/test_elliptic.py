@@ -174,3 +174,36 @@ def test_jacobi_by_doubling_against_mpmath(band):
                 # Within K no reflection is needed (quarter = 0 means "|u| <= K").
                 assert np.allclose(elliptic.ellipj_doubling(u, m, 0.0), ours, rtol=0,
                                    atol=TOL)
+
+
+def test_complete_first_kind_by_the_agm_against_scipy():
+    # scipy.special.ellipkm1 takes the complement 1 - m as ellipk_agm does (cephes, an
+    # independent implementation); m from -1e3 to 1 - 1e-12, where the AGM runs longest.
+    # Tolerance TOL as for the other integrals (the AGM is exact to rounding per step).
+    for m1 in np.concatenate([10.0 ** RNG.uniform(-12.0, 3.0, 400), [1.0, 2.0]]):
+        assert abs(elliptic.ellipk_agm(m1) / sp.ellipkm1(m1) - 1.0) <= TOL, m1
+    assert elliptic.ellipk_agm(0.0) == math.inf and math.isnan(elliptic.ellipk_agm(-1.0))
+
+
+def test_paired_carlson_first_kind_equals_two_single_ones():
+    # elliprf_pair interleaves two duplications; each must equal scipy.special.elliprf
+    # (an independent implementation) to TOL, whatever the other's arguments.
+    for first, second in zip(_args(500, 3), _args(500, 3)):
+        one, two = elliptic.elliprf_pair(*first, *second)
+        assert abs(one / sp.elliprf(*first) - 1.0) <= TOL, first
+        assert abs(two / sp.elliprf(*second) - 1.0) <= TOL, second
+
+
+def test_complete_k_d_pi_by_the_agm_against_mpmath():
+    # mpmath at 40 digits (an independent implementation; (K - E)/m at that precision
+    # has no cancellation to speak of).  K and D to TOL; Pi to TOL for 1 - n >= 1e-2,
+    # the only range the closed form uses it in (the sum n/(1 - n) sum Q_j amplifies
+    # rounding by ~1/(1 - n); render.geodesics.closed_form takes R_J below).
+    with mpmath.workdps(40):
+        for m in np.concatenate([-(10.0 ** RNG.uniform(-8.0, 3.0, 40)), RNG.uniform(0, 0.99, 10)]):
+            for n in (-3.0, 0.0, RNG.uniform(0.0, 0.99), 0.99):
+                k, d, pi = elliptic.complete_kdpi(m, n, 1.0 - n)
+                big_k, big_e = mpmath.ellipk(m), mpmath.ellipe(m)
+                assert abs(k / float(big_k) - 1.0) <= TOL, (m, n)
+                assert abs(d / float((big_k - big_e) / m) - 1.0) <= TOL, (m, n)
+                assert abs(pi / float(mpmath.ellippi(n, m)) - 1.0) <= TOL, (m, n)

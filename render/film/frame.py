@@ -19,6 +19,7 @@ from ..imaging.still import shining_crossings
 from ..light.display import scene_scalar_pixels
 from ..light.pattern import pattern_factor, tortoise_radius
 from ..imaging.sensor import finish_still, needs_sensor
+from ..light.emission import observed_bolometric
 from ..light.observing import crossing_weights, order_sum, prepare_observation, shade
 
 __all__ = ["FrameJob", "FrameResult", "render_frame", "shades_once"]
@@ -206,7 +207,7 @@ _WEIGHTS_CACHE = {}
 
 
 def _film_weights(scene, job):
-    """(raw, hits, offset, g^4, I_em(r), limb weight) of a film's one trace at azimuth 0, cached.
+    """(raw, hits, offset, g, I_em(r), limb weight) of a film's one trace at azimuth 0, cached.
 
     Cached per trace and per frame scene with its azimuth left out: frames whose
     keyframes change the emission or the disk get their own weights.
@@ -219,9 +220,9 @@ def _film_weights(scene, job):
         observation = prepare_observation(scene)
         _, weight = crossing_weights(observation, raw["r"], g, hits, bundle)
         with np.errstate(invalid="ignore"):
-            emitted = observation.law.intensity(raw["r"])
+            emitted = observation.law.intensity(np.where(hits, raw["r"], np.nan))
         _WEIGHTS_CACHE.clear()
-        _WEIGHTS_CACHE[key] = (raw, hits, offset, np.asarray(g) ** 4, emitted, weight)
+        _WEIGHTS_CACHE[key] = (raw, hits, offset, g, emitted, weight)
     return _WEIGHTS_CACHE[key]
 
 
@@ -231,7 +232,7 @@ def _pattern_only_intensity(scene, job):
     The same arithmetic, in the same order, as :func:`render.light.observing.shade`
     with the pattern's law (:class:`_ModulatedLaw`), so the result is identical to it.
     """
-    raw, hits, offset, g4, emitted, weight = _film_weights(scene, job)
+    raw, hits, offset, g, emitted, weight = _film_weights(scene, job)
     if scene["pattern.shape"] != "none":
         factor = pattern_factor(
             scene["pattern.shape"], raw["r"], raw["phi"] + math.radians(scene["observer.azimuth"]),
@@ -241,7 +242,7 @@ def _pattern_only_intensity(scene, job):
             pitch_deg=scene["pattern.pitch"])
         emitted = emitted * np.where(hits, factor, 1.0)
     with np.errstate(invalid="ignore"):
-        return order_sum(g4 * emitted * weight, hits)
+        return order_sum(observed_bolometric(g, np.where(hits, emitted, 0.0)) * weight, hits)
 
 
 def _shade_traced(scene, job, bundle, raw):

@@ -78,8 +78,8 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from .elliptic import (FAST_ARITHMETIC, elliprf, elliprf_rd_rj, elliprj, ellipj_doubling,
-                       ellipj_work)
+from .elliptic import (FAST_ARITHMETIC, complete_kdpi, elliprf, elliprf_pair, elliprf_rd_rj,
+                       elliprj, ellipj_doubling, ellipj_work, ellipk_agm)
 from .radial_integrals import complex_time, real_time
 from .integrator import (FATE_CAPTURED, FATE_DISK, FATE_ESCAPED, FATE_UNRESOLVED,
                          parallel_kernel_call)
@@ -93,7 +93,14 @@ CLASS_TURNING = 2   # four real roots, r4 > r_+: turns and escapes
 CLASS_REAL_IN = 3   # four real roots, r4 < r_+: captured
 CLASS_COMPLEX = 4   # r3, r4 complex: captured
 
+# What the crossings' azimuth and delay are computed for (``want_maps``).
+MAPS_NONE = 0       # none: an image needs only r (and g from it)
+MAPS_DISK = 1       # the recorded crossings between r_in and r_out (on the disk)
+MAPS_ALL = 2        # every recorded crossing
+
 _SCRATCH = 32   # two AGM level arrays for the Jacobi functions
+# Below this 1 - u+ the AGM's complete Pi(u+ | m) would lose more than two digits.
+_AGM_PI_LIMIT = 1e-2
 
 
 @njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
@@ -184,6 +191,25 @@ def _radial_parts(cls, x, s, c, d, r, k, n, r1, r2, r3, r4, big_a, big_b, c_a, c
                      dsigma_dx, at_infinity)
 
 
+@njit(cache=True, inline="always", error_model="numpy", fastmath=FAST_ARITHMETIC)
+def _polar_map_integrals(m_pol, u_plus, one_minus_u_plus, x_o, w_o, y_o):
+    """(pi_c, pi_o, d_c, d_o): the polar third- and second-kind integrals of the maps.
+
+    Complete: Pi(u+ | m) and D(m) from one arithmetic-geometric mean
+    (:func:`render.geodesics.elliptic.complete_kdpi`); its Pi loses about
+    log10(1 / (1 - u+)) digits, so below 1 - u+ = 1e-2 (|lam| small) Pi comes from
+    Carlson's R_J instead.  Incomplete, at the observer: Pi(u+; asin x_o | m) and
+    D(asin x_o | m) as R_F + u+ R_J / 3 and R_D / 3 (DLMF 19.25.13-14) from one
+    duplication (Carlson 1995, sec. 2).
+    """
+    k_c, d_c, pi_c = complete_kdpi(m_pol, u_plus, one_minus_u_plus)
+    if one_minus_u_plus < _AGM_PI_LIMIT:
+        pi_c = k_c + u_plus * elliprj(0.0, 1.0 - m_pol, 1.0, one_minus_u_plus) / 3.0
+    rf_o, rd_o, rj_o = elliprf_rd_rj(w_o, y_o, 1.0, one_minus_u_plus + u_plus * w_o)
+    x3 = x_o * x_o * x_o
+    return pi_c, x_o * rf_o + u_plus * x3 * rj_o / 3.0, d_c, x3 * rd_o / 3.0
+
+
 @njit(cache=True, error_model="numpy", fastmath=FAST_ARITHMETIC)
 def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
              max_crossings, n_record, stop_on_disk, r_in, r_out, want_end, want_maps,
@@ -208,6 +234,17 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         # and by the integrator's fates over whole images): all are captured.
         return FATE_CAPTURED, 0, np.nan, np.nan
 
+    # --- polar parameters (NaN for a ray in the plane, which never uses them) -----
+    b_pol = eta + lam * lam - spin * spin
+    nu = 0.5 * (b_pol + math.sqrt(b_pol * b_pol + 4.0 * spin * spin * eta))
+    u_plus = eta / nu
+    m_pol = -spin * spin * u_plus / nu
+    one_minus_u_plus = lam * lam / (spin * spin + nu)
+    root_nu = math.sqrt(nu)
+    x_o = min(abs(cos_o) / math.sqrt(u_plus), 1.0)
+    y_o = 1.0 - m_pol * x_o * x_o
+    w_o = 1.0 - x_o * x_o
+
     # --- radial motion: class, elliptic parameter, sigma(X) and its end ----------
     if real34 and r4 > r_capture:
         cls = CLASS_TURNING
@@ -231,7 +268,8 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         n_char = r41 / r31
         dsigma_dx = 2.0 / math.sqrt(r31 * r42)
         s2 = r31 / r41
-        f_inf = math.sqrt(s2) * elliprf(r43 / r41, r43 / r41 + k1 * s2, 1.0)
+        f_inf, rf_o = elliprf_pair(r43 / r41, r43 / r41 + k1 * s2, 1.0, w_o, y_o, 1.0)
+        f_inf *= math.sqrt(s2)
         c_a, c_b, c_c, c_d = r31, r41, r4 * r31, r3 * r41
         # X = sigma / dsigma_dx - f_inf runs from -f_inf (infinity) through 0 (r4).
         x_start = -f_inf
@@ -254,8 +292,10 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         dsigma_dx = 1.0 / math.sqrt(big_a * big_b)
         c_inf = (big_a - big_b) / (big_a + big_b)
         s_inf2 = 1.0 - c_inf * c_inf
-        f_inf = math.sqrt(s_inf2) * elliprf(c_inf * c_inf, c_inf * c_inf + k1 * s_inf2, 1.0)
-        quarter = elliprf(0.0, k1, 1.0)
+        f_inf, rf_o = elliprf_pair(c_inf * c_inf, c_inf * c_inf + k1 * s_inf2, 1.0, w_o, y_o,
+                                   1.0)
+        f_inf *= math.sqrt(s_inf2)
+        quarter = ellipk_agm(k1)
         if c_inf < 0.0:
             # arccos beyond pi/2: F(pi - phi) = 2K - F(phi).
             f_inf = 2.0 * quarter - f_inf
@@ -290,34 +330,16 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         phi_end = phi_o - phi_scale * (phi_out - phi_inf) - lam * sigma_end
         return FATE_ESCAPED, 0, 0.5 * math.pi, phi_end % (2.0 * math.pi)
 
-    # --- polar motion ---------------------------------------------------------
-    b_pol = eta + lam * lam - spin * spin
-    nu = 0.5 * (b_pol + math.sqrt(b_pol * b_pol + 4.0 * spin * spin * eta))
-    u_plus = eta / nu
-    m_pol = -spin * spin * u_plus / nu
-    one_minus_u_plus = lam * lam / (spin * spin + nu)
-    root_nu = math.sqrt(nu)
-    x_o = min(abs(cos_o) / math.sqrt(u_plus), 1.0)
-    y_o = 1.0 - m_pol * x_o * x_o
-    w_o = 1.0 - x_o * x_o
+    # --- polar motion (F(asin x_o | m) is computed with the radial F at infinity) ---
     with_pi = lam != 0.0
+    # K(m) by the AGM (a fifth of R_F's cost); the third- and second-kind polar
+    # integrals of the azimuth and the delay come later, only if a crossing needs them.
+    rf_c = ellipk_agm(1.0 - m_pol)
+    polar_ready = False
     pi_c = 0.0
     pi_o = 0.0
     d_c = 0.0
     d_o = 0.0
-    if want_maps and n_record > 0:
-        # The third- and second-kind polar integrals of the azimuth and the delay, each
-        # pair from one duplication with the first-kind one.
-        p_o = one_minus_u_plus + u_plus * w_o
-        rf_c, rd_c, rj_c = elliprf_rd_rj(0.0, 1.0 - m_pol, 1.0, one_minus_u_plus)
-        rf_o, rd_o, rj_o = elliprf_rd_rj(w_o, y_o, 1.0, p_o)
-        pi_c = rf_c + u_plus * rj_c / 3.0
-        pi_o = x_o * rf_o + u_plus * x_o * x_o * x_o * rj_o / 3.0
-        d_c = rd_c / 3.0
-        d_o = x_o * x_o * x_o * rd_o / 3.0
-    else:
-        rf_o = elliprf(w_o, y_o, 1.0)
-        rf_c = elliprf(0.0, 1.0 - m_pol, 1.0)
     g_o = x_o * rf_o / root_nu
     g_half = rf_c / root_nu
     # Towards the equator first iff mu_o dmu/dsigma < 0 (dmu/dsigma = beta sin_o);
@@ -337,13 +359,21 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         sigma_n = 2.0 * turns * g_half + sign_o * g_o
         if not sigma_n < sigma_end:
             break
+        if n_cross >= n_record and not stop_on_disk:
+            # Only counted: neither r nor the maps of this crossing are wanted.
+            n_cross += 1
+            if n_cross >= max_crossings:
+                fate = FATE_UNRESOLVED
+                break
+            continue
         x_n = x_start + direction * sigma_n / dsigma_dx
         sn, cn, dn = ellipj_doubling(x_n, k, quarter)
         r_n = 1.0 / _u_from_jacobi(cls, sn, cn, c_a, c_b, c_c, c_d)
         if n_cross < n_record:
             out_r[row, n_cross] = r_n
             out_inward[row, n_cross] = not (cls == CLASS_TURNING and x_n > 0.0)
-        if n_cross < n_record and want_maps:
+        if n_cross < n_record and (want_maps == MAPS_ALL or (
+                want_maps == MAPS_DISK and r_in <= r_n <= r_out)):
             if not ready:
                 # Once per ray: the radial values at infinity.
                 phi_inf, time_inf = _radial_parts(
@@ -351,6 +381,10 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
                     big_a, big_b, c_a, c_b, c_c, c_d, spin, lam, r_plus, r_minus,
                     dsigma_dx, True)
                 ready = True
+            if not polar_ready:
+                pi_c, pi_o, d_c, d_o = _polar_map_integrals(m_pol, u_plus, one_minus_u_plus,
+                                                            x_o, w_o, y_o)
+                polar_ready = True
             phi_x, time_x = _radial_parts(cls, x_n, sn, cn, dn, r_n, k, n_char, r1, r2, r3,
                                           r4, big_a, big_b, c_a, c_b, c_c, c_d, spin, lam,
                                           r_plus, r_minus, dsigma_dx, False)
@@ -378,7 +412,7 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
         phi_inf, _ = _radial_parts(cls, x_start, s_inf, c_inf, d_inf, np.inf, k, n_char, r1,
                                    r2, r3, r4, big_a, big_b, c_a, c_b, c_c, c_d, spin, lam,
                                    r_plus, r_minus, dsigma_dx, True)
-    if with_pi and not (want_maps and n_record > 0):
+    if with_pi and not polar_ready:
         pi_c = rf_c + u_plus * elliprj(0.0, 1.0 - m_pol, 1.0, one_minus_u_plus) / 3.0
         p_o = one_minus_u_plus + u_plus * w_o
         pi_o = x_o * rf_o + u_plus * x_o ** 3 * elliprj(w_o, y_o, 1.0, p_o) / 3.0
@@ -422,8 +456,13 @@ def _one_ray(alpha, beta, spin, sin_o, cos_o, phi_o, r_plus, r_minus, r_capture,
 
 @njit(cache=True, parallel=True, error_model="numpy")
 def closed_form_crossings(alpha, beta, phi_o, spin, sin_o, cos_o, r_capture, max_crossings,
-                          n_record, stop_on_disk, r_in, r_out, want_end, want_maps=True):
+                          n_record, stop_on_disk, r_in, r_out, want_end, want_maps, first,
+                          cross_r, cross_phi, cross_delay, cross_inward, fate, n_crossings,
+                          theta_end, phi_end):
     """Equatorial crossings of distant-observer rays in closed form (one prange per ray).
+
+    Ray i of ``alpha``, ``beta``, ``phi_o`` fills row ``first + i`` of the outputs, so
+    that a caller tracing in chunks writes straight into its whole arrays (no copies).
 
     Parameters
     ----------
@@ -439,45 +478,46 @@ def closed_form_crossings(alpha, beta, phi_o, spin, sin_o, cos_o, r_capture, max
         As for :func:`render.geodesics.integrator.trace_rays`.
     want_end : bool
         Also compute the escape direction (theta_end, phi_end).
-    want_maps : bool
-        Also compute the azimuth and the delay of the recorded crossings (NaN
-        otherwise); r, the fates and the crossing counts do not need them.
-
-    Returns
-    -------
-    tuple
-        (cross_r, cross_phi, cross_delay, cross_inward, fate, n_crossings, steps,
-        theta_end, phi_end), as :func:`render.geodesics.integrator.trace_rays` (steps are 0).
+    want_maps : int
+        For which recorded crossings the azimuth and the delay are computed:
+        ``MAPS_NONE``, ``MAPS_DISK`` (r_in <= r <= r_out) or ``MAPS_ALL``; r, the
+        fates and the crossing counts never need them.
+    first : int
+        Row of the outputs that the first ray fills.
+    cross_r, cross_phi, cross_delay, cross_inward : ndarray, shape (M, n_record)
+        Outputs, filled with NaN (False) beforehand; ``cross_phi`` and
+        ``cross_delay`` may have no rows at all with ``MAPS_NONE``.
+    fate, n_crossings, theta_end, phi_end : ndarray, shape (M,)
+        Outputs as :func:`render.geodesics.integrator.trace_rays` (theta_end and phi_end
+        filled with NaN beforehand).
     """
-    n = alpha.shape[0]
-    cross_r = np.full((n, n_record), np.nan)
-    maps_record = n_record if want_maps else 0   # no columns: never written
-    cross_phi = np.full((n, maps_record), np.nan)
-    cross_delay = np.full((n, maps_record), np.nan)
-    cross_inward = np.zeros((n, n_record), dtype=np.bool_)
-    fate = np.empty(n, dtype=np.int8)
-    n_crossings = np.empty(n, dtype=np.int32)
-    steps = np.zeros(n, dtype=np.int32)
-    theta_end = np.full(n, np.nan)
-    phi_end = np.full(n, np.nan)
     root = math.sqrt(1.0 - spin * spin)
     r_plus = 1.0 + root
     r_minus = spin * spin / r_plus   # = 1 - root, without its cancellation at small spin
+    n = alpha.shape[0]
     scratch = np.empty((n, _SCRATCH))
     for i in prange(n):
+        row = first + i
         result = _one_ray(alpha[i], beta[i], spin, sin_o, cos_o, phi_o[i], r_plus, r_minus,
                           r_capture, max_crossings, n_record, stop_on_disk, r_in, r_out,
                           want_end, want_maps, cross_r, cross_phi, cross_delay,
-                          cross_inward, i, scratch[i])
-        fate[i] = result[0]
-        n_crossings[i] = result[1]
-        theta_end[i] = result[2]
-        phi_end[i] = result[3]
-    return (cross_r, cross_phi, cross_delay, cross_inward, fate, n_crossings, steps,
-            theta_end, phi_end)
+                          cross_inward, row, scratch[i])
+        fate[row] = result[0]
+        n_crossings[row] = result[1]
+        theta_end[row] = result[2]
+        phi_end[row] = result[3]
 
 
 # --- Python-level API ------------------------------------------------------------
+
+def _maps_code(want_maps):
+    """The kernel's ``want_maps`` code of True, False or "disk"."""
+    if isinstance(want_maps, str):
+        if want_maps != "disk":
+            raise ValueError(f"want_maps must be True, False or 'disk', got {want_maps!r}")
+        return MAPS_DISK
+    return MAPS_ALL if want_maps else MAPS_NONE
+
 
 def closed_form_bundle(alpha, beta, bundle, spin, inclination_deg, *, n_record,
                        max_crossings=64, stop_on_disk=False, r_in=0.0, r_out=0.0,
@@ -496,9 +536,11 @@ def closed_form_bundle(alpha, beta, bundle, spin, inclination_deg, *, n_record,
     want_end : bool
         Compute the escape direction ``theta_end``, ``phi_end`` (NaN otherwise, and
         always NaN for rays with eta <= 0, which are all captured).
-    want_maps : bool
-        Compute ``phi`` and ``delay`` of the crossings (NaN otherwise).  An image needs
-        only r (and g from it); skipping the two saves about two thirds of the time.
+    want_maps : bool or "disk"
+        Compute ``phi`` and ``delay`` of every recorded crossing (True), of those on
+        the disk only (``"disk"``: r_in <= r <= r_out, NaN elsewhere), or of none
+        (False: NaN).  An image needs only r (and g from it); the two maps take
+        two to three times as long as r alone.
 
     Returns
     -------
@@ -506,32 +548,37 @@ def closed_form_bundle(alpha, beta, bundle, spin, inclination_deg, *, n_record,
         The keys of :func:`render.geodesics.tracing.trace_bundle`: r, phi, delay, inward, fate,
         n_crossings, steps (all 0), theta_end, phi_end.
     """
+    maps = _maps_code(want_maps)
     _, sin_o, cos_o = polar_position(float(inclination_deg))
     alpha = np.ascontiguousarray(np.asarray(alpha, dtype=float).ravel())
     beta = np.ascontiguousarray(np.asarray(beta, dtype=float).ravel())
     phi_o = np.ascontiguousarray(bundle.states[:, 4], dtype=float)
     r_capture = capture_radius(spin)
-    names = ("r", "phi", "delay", "inward", "fate", "n_crossings", "steps", "theta_end",
-             "phi_end")
-    parts = {name: [] for name in names}
     total = alpha.size
+    n_record = int(n_record)
+    raw = {"r": np.full((total, n_record), np.nan)}
+    if maps == MAPS_NONE:
+        # Skipped maps are all-NaN read-only views (no memory); the kernel gets no rows.
+        raw["phi"] = raw["delay"] = np.broadcast_to(np.nan, (total, n_record))
+        phi_out = delay_out = np.empty((0, n_record))
+    else:
+        raw["phi"] = phi_out = np.full((total, n_record), np.nan)
+        raw["delay"] = delay_out = np.full((total, n_record), np.nan)
+    raw.update(inward=np.zeros((total, n_record), dtype=np.bool_),
+               fate=np.empty(total, dtype=np.int8), n_crossings=np.empty(total, dtype=np.int32),
+               steps=np.zeros(total, dtype=np.int32), theta_end=np.full(total, np.nan),
+               phi_end=np.full(total, np.nan))
     for start in range(0, max(total, 1), chunk_rays):
         stop = min(start + chunk_rays, total)
         # Like the integrator: Ctrl-C is held back during the parallel kernel call
         # (a signal inside it can crash the process) and raised after it.
         with parallel_kernel_call():
-            arrays = closed_form_crossings(
+            closed_form_crossings(
                 alpha[start:stop], beta[start:stop], phi_o[start:stop], float(spin),
                 float(sin_o), float(cos_o), float(r_capture), int(max_crossings),
-                int(n_record), bool(stop_on_disk), float(r_in), float(r_out), bool(want_end),
-                bool(want_maps))
-        for name, array in zip(names, arrays):
-            parts[name].append(array)
-            if name in ("phi", "delay") and not want_maps:
-                parts[name][-1] = None
+                n_record, bool(stop_on_disk), float(r_in), float(r_out), bool(want_end),
+                maps, start, raw["r"], phi_out, delay_out, raw["inward"], raw["fate"],
+                raw["n_crossings"], raw["theta_end"], raw["phi_end"])
         if progress is not None:
             progress(stop, total)
-    skipped = ("phi", "delay") if not want_maps else ()
-    # Skipped maps are all-NaN read-only views (no memory).
-    return {name: (np.broadcast_to(np.nan, (total, int(n_record))) if name in skipped
-                   else np.concatenate(chunks)) for name, chunks in parts.items()}
+    return raw

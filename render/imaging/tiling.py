@@ -211,11 +211,11 @@ class TileStore:
                 row_bytes = int(np.prod(shape[2:])) * dtype.itemsize
                 for k in range(shape[0]):
                     handle.seek(offset + (k * shape[1] + start) * row_bytes)
-                    handle.write(band[k].tobytes())
+                    handle.write(band[k].data)   # the buffer itself: no copy
             else:
                 row_bytes = int(np.prod(shape[1:])) * dtype.itemsize
                 handle.seek(offset + start * row_bytes)
-                handle.write(band.tobytes())
+                handle.write(band.data)
 
     per_order = frozenset()
 

@@ -18,7 +18,8 @@ import numpy as np
 from numba import njit, prange
 from .cie import xyz_to_linear_srgb_matrix
 
-__all__ = ["SRGB_LUMINANCE", "tone_map", "srgb_encode", "to_uint8", "to_uint16", "xyz_to_linear_srgb",
+__all__ = ["SRGB_LUMINANCE", "tone_map", "srgb_encode", "srgb_pixels", "to_uint8", "to_uint16",
+           "xyz_to_linear_srgb",
            "desaturate_into_gamut", "expose_true_colour", "automatic_reference_luminance"]
 
 # Luminance Y of linear sRGB: Y = 0.2126 R + 0.7152 G + 0.0722 B (IEC 61966-2-1, the
@@ -63,6 +64,38 @@ def _srgb_kernel(v, out):
     for i in prange(v.size):
         x = min(max(v[i], 0.0), 1.0)   # NaN stays NaN (as numpy.clip), then 8-bit 0
         out[i] = 12.92 * x if x <= 0.0031308 else 1.055 * x ** (1.0 / 2.4) - 0.055
+
+
+def srgb_pixels(linear):
+    """(8-bit, 16-bit) sRGB codes of linear values in [0, 1]: one pass, no float temporaries.
+
+    Equal to ``to_uint8(srgb_encode(linear)), to_uint16(srgb_encode(linear))`` (the same
+    transfer function and round-half-to-even); NaN gives 0.
+
+    Examples
+    --------
+    >>> [a.tolist() for a in srgb_pixels(np.array([0.0, 0.5, 1.0]))]
+    [[0, 188, 255], [0, 48192, 65535]]
+    """
+    v = np.ascontiguousarray(linear, dtype=float)
+    out8 = np.empty(v.shape, dtype=np.uint8)
+    out16 = np.empty(v.shape, dtype=np.uint16)
+    _srgb_pixels_kernel(v.reshape(-1), out8.reshape(-1), out16.reshape(-1))
+    return out8, out16
+
+
+@njit(cache=True, parallel=True, error_model="numpy")
+def _srgb_pixels_kernel(v, out8, out16):
+    for i in prange(v.size):
+        x = min(max(v[i], 0.0), 1.0)
+        e = 12.92 * x if x <= 0.0031308 else 1.055 * x ** (1.0 / 2.4) - 0.055
+        e = min(max(e, 0.0), 1.0)
+        if e != e:   # NaN: the 8-bit 0 of to_uint8 (numpy casts NaN to 0 there)
+            out8[i] = 0
+            out16[i] = 0
+        else:
+            out8[i] = np.uint8(np.rint(e * 255.0))
+            out16[i] = np.uint16(np.rint(e * 65535.0))
 
 
 def to_uint8(encoded):

@@ -44,7 +44,7 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from .color import desaturate_into_gamut, srgb_encode, to_uint8, to_uint16
+from .color import desaturate_into_gamut, srgb_encode, srgb_pixels, to_uint8
 from .glare import add_glare
 
 __all__ = ["SCALINGS", "COLOUR_MAPS", "COLOUR_RULES", "scale_display", "colour_mapped",
@@ -174,8 +174,7 @@ def colour_display(rgb_exposed_unlimited, rule):
 
 def colour_pixels(display_rgb):
     """(8-bit, 16-bit) sRGB pixels of display linear sRGB."""
-    encoded = srgb_encode(display_rgb)
-    return to_uint8(encoded), to_uint16(encoded)
+    return srgb_pixels(display_rgb)
 
 
 def _with_glare(scene, exposed):

@@ -354,7 +354,8 @@ def observed_bolometric(g, emitted):
     >>> float(observed_bolometric(0.5, 16.0))
     1.0
     """
-    return np.asarray(g) ** 4 * np.asarray(emitted)
+    g2 = np.square(g)   # g^4 as two squares: numpy's general power is ~10x slower
+    return np.square(g2) * np.asarray(emitted)
 
 
 def observed_specific_intensity(nu_obs, g, r, law):

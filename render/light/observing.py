@@ -253,13 +253,41 @@ class Shaded:
 
 
 def crossing_weights(obs, r, g, hits, bundle):
-    """(mu, weight) of each crossing: its emission cosine and its limb-darkening weight.
-
-    The weight is 0 where the crossing does not shine.  ``r``, ``g`` and ``hits`` are
-    (N, orders) arrays of the rays of ``bundle``.
+    """(mu, weight) of each crossing: its emission cosine where it shines (else NaN) and
+    its limb-darkening weight (else 0).  ``r``, ``g`` and ``hits`` are (N, orders) arrays
+    of the rays of ``bundle``.
     """
-    mu = emission_cosine(r, bundle.eta[:, None], g, bundle.energy_ratio[:, None])
-    return mu, np.where(hits, limb_darkening(mu, obs.limb), 0.0)
+    eta, energy_ratio = bundle.eta[:, None], bundle.energy_ratio[:, None]
+    shape = np.shape(r)
+    rows, cols = np.nonzero(hits)
+
+    def lit(values):
+        values = np.asarray(values)
+        return values[rows, cols] if values.ndim == 2 and values.shape[1] == shape[1] \
+            else np.broadcast_to(values, shape)[rows, cols]
+
+    mu = np.full(shape, np.nan)
+    mu[rows, cols] = emission_cosine(np.asarray(r)[rows, cols], lit(eta), lit(g),
+                                     lit(energy_ratio))
+    weight = np.zeros(shape)
+    weight[rows, cols] = limb_darkening(mu[rows, cols], obs.limb)
+    return mu, weight
+
+
+def on_lit(function, r, hits, fill=0.0):
+    """``function(r)`` evaluated at the shining crossings only, ``fill`` elsewhere.
+
+    Most crossing slots of an image are empty (no such order) or off the disk;
+    per-radius quantities (a colour temperature) are evaluated where they shine.
+
+    Examples
+    --------
+    >>> on_lit(np.sqrt, np.array([4.0, 9.0]), np.array([True, False])).tolist()
+    [2.0, 0.0]
+    """
+    out = np.full(np.shape(r), fill)
+    out[hits] = function(np.asarray(r)[hits])
+    return out
 
 
 def order_sum(values, hits):
@@ -310,7 +338,10 @@ def shade(obs, scene, raw, g, hits, bundle, alpha=None, beta=None):
     r_in, r_out = scene.inner_radius, scene["disk.outer_radius"]
     mu, weight = crossing_weights(obs, r, g, hits, bundle)
     with np.errstate(invalid="ignore"):
-        per_crossing = observed_bolometric(g, law.intensity(r)) * weight
+        # The law sees every crossing slot (a law modulated per crossing, as a moving
+        # pattern's, needs their shape), NaN where none shines: its kernels skip those.
+        emitted = np.where(hits, law.intensity(np.where(hits, r, np.nan)), 0.0)
+        per_crossing = observed_bolometric(g, emitted) * weight
     bolometric = order_sum(per_crossing, hits)
     info = dict(obs.info)
     info.update(pixel_scale(scene))
@@ -582,16 +613,22 @@ def pixel_scale(scene):
             "pixel_scale_m": scene["observer.field_of_view"] / scene["image.width"]}
 
 
-def colour_xyz(law, r, g, weight):
-    """XYZ (N, 3) of the observed colour-corrected blackbody light, summed over orders."""
+def colour_xyz(law, r, g, weight, hits=None):
+    """XYZ (N, 3) of the observed colour-corrected blackbody light, summed over orders.
 
-    t_obs = g * law.colour_temperature(r)
+    With ``hits`` (N, orders) only those crossings shine (the temperature of the
+    others is not even evaluated); without, every crossing with a finite g.
+    """
+    if hits is None:
+        t_obs = g * law.colour_temperature(r)
+    else:
+        t_obs = np.asarray(g) * on_lit(law.colour_temperature, r, hits, np.nan)
     dilution = law.colour_correction ** -4
     return blackbody_xyz_sum(t_obs, np.broadcast_to(weight, t_obs.shape) * dilution)
 
 
 def _true_colour(obs, scene, r, g, weight, hits):
-    xyz = colour_xyz(obs.law, r, np.where(hits, g, np.nan), weight)
+    xyz = colour_xyz(obs.law, r, g, weight, hits)
     reference = exposure_white(obs, scene.inner_radius, scene["disk.outer_radius"])
     if reference is None:   # the automatic exposure: the image's own white
         reference = automatic_reference_luminance(xyz[:, 1])
