@@ -159,12 +159,14 @@ class _Store:
     ORDER_FIELDS = ("r", "phi", "delay", "inward")
     RAY_FIELDS = ("fate", "n_crossings", "steps")
 
-    def __init__(self, settings, viewpoint, trace_settings, rows, pad):
+    def __init__(self, settings, viewpoint, trace_settings, rows, pad, maps):
         self.settings, self.viewpoint, self.trace_settings = settings, viewpoint, trace_settings
+        self.maps = maps
         self.row0 = rows[0]
         self.pad = pad
         self.shape = (rows[1] - rows[0] + 3 * pad, viewpoint.width + 3 * pad)
         self.known = np.zeros(self.shape, dtype=bool)
+        self.stamp = np.zeros(self.shape, dtype=np.int64)
         self.fields = {}
         self.lam = np.full(self.shape, np.nan)
         self.energy_ratio = np.full(self.shape, np.nan)
@@ -176,13 +178,16 @@ class _Store:
     def ensure(self, i, j):
         """Trace the points (i, j) of the extended grid not traced yet."""
         flat = np.ravel_multi_index((i, j), self.shape)
-        flat = np.unique(flat[~self.known.ravel()[flat]])
+        flat = flat[~self.known.ravel()[flat]]
+        # Each point once (the last of its copies keeps its stamp), without sorting.
+        self.stamp.ravel()[flat] = np.arange(flat.size)
+        flat = flat[self.stamp.ravel()[flat] == np.arange(flat.size)]
         if flat.size == 0:
             return
         ii, jj = np.unravel_index(flat, self.shape)
         x, y = self.points(ii, jj)
         bundle = self.viewpoint.rays_at(x, y)
-        raw = trace(self.trace_settings, x, y, bundle, maps=True)
+        raw = trace(self.trace_settings, x, y, bundle, maps=self.maps)
         if not self.fields:
             orders = raw["r"].shape[1]
             for name in self.ORDER_FIELDS:
@@ -296,7 +301,7 @@ def _level(store, pending, stride, spin, out):
             smooth &= (order[a:a + n_i, b:b + n_j] == order[1:1 + n_i, 1:1 + n_j]).all(axis=-1)
     ci, cj = np.nonzero(smooth)
     weights = _cubic_weights(stride)
-    for name in ("r", "phi", "delay"):
+    for name in ("r", "phi", "delay") if store.maps else ("r",):
         _fill_cells(np.ascontiguousarray(store.fields[name][grid]), weights, ci, cj,
                     name == "phi", out[name])
     for di, dj in _test_offsets(stride):
@@ -342,7 +347,7 @@ def _tests_passed(store, test, at, node, spin):
     return ok.all(axis=1) & (ray == ray_node)
 
 
-def sample_band(trace_settings, viewpoint, settings, rows=None, progress=None):
+def sample_band(trace_settings, viewpoint, settings, rows=None, progress=None, maps=True):
     """Trace a band of rows adaptively; return its raw arrays and the ``interpolated`` map.
 
     Parameters
@@ -356,6 +361,10 @@ def sample_band(trace_settings, viewpoint, settings, rows=None, progress=None):
         The band of rows (all rows if None).
     progress : callable, optional
         ``progress(done, total)`` in pixels resolved.
+    maps : bool
+        Whether phi and the delay are wanted: ``maps=False`` lets the closed form skip
+        them (NaN then, as in :func:`render.geodesics.tracing.trace`), and only r and g
+        are checked.
 
     Returns
     -------
@@ -375,7 +384,9 @@ def sample_band(trace_settings, viewpoint, settings, rows=None, progress=None):
     rows = (0, viewpoint.height) if rows is None else rows
     height, width = rows[1] - rows[0], viewpoint.width
     pad = max(settings.strides)
-    store = _Store(settings, viewpoint, trace_settings, rows, pad)
+    # The integrator computes phi and the delay anyway (as trace() keeps them).
+    maps = maps or trace_settings.method != "closed_form"
+    store = _Store(settings, viewpoint, trace_settings, rows, pad, maps)
     pending = np.ones((height, width), dtype=bool)
     # The stride that accepted each interpolated pixel (0: traced).
     strides = np.zeros((height, width), dtype=np.int16)
@@ -415,6 +426,9 @@ def _assembled(store, out, strides, pending):
     rows = p + np.arange(height)[:, None] // step * step
     cols = p + np.arange(width)[None, :] // step * step
     for name, array in store.fields.items():
+        if name in ("phi", "delay") and not store.maps:   # skipped: all NaN, no memory
+            raw[name] = np.broadcast_to(np.nan, (height * width,) + array.shape[2:])
+            continue
         if name in out:
             band = np.array(array[inside])
             where = interpolated.reshape(interpolated.shape + (1,) * (band.ndim - 2))

@@ -130,7 +130,7 @@ def _render_band(scene, observation, rows, progress, maps=True):
     sampled = None
     if sampling.is_adaptive:   # never with a sensor (check_sampling), so never with a halo
         sampled = sample_band(scene.trace_settings(), scene.viewpoint(), sampling, rows,
-                              progress)
+                              progress, maps)
     raw, g, hits, shaded = trace_and_shade(
         scene, observation, alpha, beta, bundle,
         _halo_free_progress(progress, alpha.size, own_rays, traced_rows != rows), maps,
@@ -149,8 +149,7 @@ def _render_band(scene, observation, rows, progress, maps=True):
     metadata = _still_metadata(scene, raw, shaded, negative, maps)
     metadata["trace_seconds"] = traced - started
     metadata["sampling"] = sampling_metadata(sampling, None if sampled is None else sampled[2])
-    if sampled is not None:   # adaptive sampling interpolates phi and the delay too
-        metadata["phi_delay_maps"] = True
+    if sampled is not None:
         shaded.products["interpolated"] = sampled[1]
     metadata["total_seconds"] = time.perf_counter() - started
     return _band_result(scene, rows, raw, g, hits, shaded, alpha, beta, metadata)
