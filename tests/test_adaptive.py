@@ -97,3 +97,15 @@ def test_image_plane_points_are_the_grid_bit_for_bit(roll):
     rows, cols = np.meshgrid(np.arange(3), np.arange(5), indexing="ij")
     x, y = image_plane_points(view, rows, cols)
     assert np.array_equal(x, alpha) and np.array_equal(y, beta)
+
+
+def test_image_too_small_for_a_stencil_is_traced_pixel_by_pixel():
+    # 4 strides must fit in the band, else no level runs: no virtual nodes, every pixel traced,
+    # the result bit for bit the every-pixel still.
+    values = {"image.width": 5, "image.height": 3}
+    exact = render_still(_scene("every_pixel", **values))
+    sampled = render_still(_scene("adaptive", **values))
+    assert sampled.metadata["sampling"]["traced_rays"] == 15
+    assert not sampled.products["interpolated"].any()
+    assert np.array_equal(exact.r, sampled.r, equal_nan=True)
+    assert np.array_equal(exact.pixels, sampled.pixels)

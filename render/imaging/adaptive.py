@@ -383,16 +383,19 @@ def sample_band(trace_settings, viewpoint, settings, rows=None, progress=None, m
     """
     rows = (0, viewpoint.height) if rows is None else rows
     height, width = rows[1] - rows[0], viewpoint.width
-    pad = max(settings.strides)
+    # A stencil spans 3 strides beyond its cell: strides that do not fit 4 times in the band
+    # would trace more virtual nodes than they save (a small image traces every pixel).
+    strides = [stride for stride in settings.strides if 4 * stride <= min(height, width)]
+    pad = max(strides, default=1)
     # The integrator computes phi and the delay anyway (as trace() keeps them).
     maps = maps or trace_settings.method != "closed_form"
     store = _Store(settings, viewpoint, trace_settings, rows, pad, maps)
     pending = np.ones((height, width), dtype=bool)
     # The stride that accepted each interpolated pixel (0: traced).
-    strides = np.zeros((height, width), dtype=np.int16)
-    out = None
-    for stride in settings.strides:
-        if out is None:
+    accepted_by = np.zeros((height, width), dtype=np.int16)
+    out = {}
+    for stride in strides:
+        if not out:
             store.ensure(np.array([pad]), np.array([pad]))   # the number of orders
             out = {name: np.full((height + pad, width + pad) + store.fields[name].shape[2:],
                                  np.nan) for name in ("r", "phi", "delay")}
@@ -400,11 +403,11 @@ def sample_band(trace_settings, viewpoint, settings, rows=None, progress=None, m
         if accepted is None:
             break
         accepted &= pending
-        strides[accepted] = stride
+        accepted_by[accepted] = stride
         pending &= ~accepted
         if progress is not None:
             progress(int(height * width - np.count_nonzero(pending)), height * width)
-    return _assembled(store, out, strides, pending)
+    return _assembled(store, out, accepted_by, pending)
 
 
 def _assembled(store, out, strides, pending):
