@@ -4,7 +4,7 @@ A still traced pixel by pixel spends most of its rays on smooth maps: away from 
 shadow's edge, the disk's edges and the photon rings, the crossing radius r, its
 azimuth phi and the delay of each order vary slowly across the image.  With
 ``tracing.sampling: adaptive`` a band of rows is sampled in levels of decreasing
-stride s (8, then 4, then 2 pixels):
+stride s (16, then 8, then 4 pixels; only strides that fit 4 times in the band):
 
 1. The nodes of the level (pixels whose row and column are multiples of s, extended
    by virtual nodes beyond the image edges) are traced where a cell still unresolved
@@ -13,11 +13,12 @@ stride s (8, then 4, then 2 pixels):
    stencil share the same fate, number of crossings, direction of each crossing and
    place of each crossing relative to the disk's edges and the ISCO; where any of
    these changes (shadow edge, disk edges, photon rings) the cell is refined.
-3. A smooth cell is interpolated per order, r, phi (unwrapped about the stencil's
-   centre node) and the delay with tensor-product cubic Lagrange weights; its centre
-   pixel, where the cubic's error kernel peaks, is traced as a test point and the cell
-   is accepted only if the interpolant meets there half the tolerance in r, g, phi and
-   the delay, and the test point is in the same class as the nodes.
+3. A smooth cell is interpolated per order, r, phi (unwrapped about a stencil node)
+   and the delay with tensor-product cubic Lagrange weights; three test pixels (the
+   middle of its top and left edges and its centre, where the cubic's error kernel
+   peaks) are traced and the cell is accepted only if the interpolant meets there
+   half the tolerance in r, g, phi and the delay, and the test pixels are in the
+   class of the nodes.
 4. Cells that fail go on to the next level; what remains after the last level is
    traced pixel by pixel.
 
@@ -42,8 +43,8 @@ __all__ = ["SAMPLINGS", "SamplingSettings", "sample_band", "image_plane_points",
            "check_sampling", "sampling_metadata", "merge_sampling_info"]
 
 SAMPLINGS = ("every_pixel", "adaptive")
-# Share of the tolerance the test points must meet: the test point sits where the cubic's
-# error kernel peaks on smooth maps, and the margin covers the rest of the cell.
+# Share of the tolerance the test pixels must meet: they sit where the cubic's error
+# kernel peaks on smooth maps, and the margin covers the rest of the cell.
 TEST_MARGIN = 0.5
 
 
