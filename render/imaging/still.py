@@ -15,6 +15,7 @@ from ..light.observing import (PER_ORDER_PRODUCTS, disk_integrated_tables, prepa
 from ..geodesics.integrator import FATE_NAMES
 from ..geodesics.tracing import energy_signs, trace
 from ..spacetime.kerr import horizon_radii, isco_radius
+from .adaptive import sample_band, sampling_metadata
 from .result import StillResult
 from .ticks import draw_ticks
 from .tiling import plan_still, render_in_tiles
@@ -115,9 +116,15 @@ def _render_band(scene, observation, rows, progress, maps=True):
     traced_rows = halo_rows(rows, scene["image.height"]) if sensor and rows is not None else rows
     alpha, beta, bundle = scene.viewpoint().rays(traced_rows)
     own_rays = _band_height(scene, rows) * scene["image.width"]
+    sampling = scene.sampling_settings()
+    sampled = None
+    if sampling.is_adaptive:   # never with a sensor (check_sampling), so never with a halo
+        sampled = sample_band(scene.trace_settings(), scene.viewpoint(), sampling, rows,
+                              progress, maps)
     raw, g, hits, shaded = trace_and_shade(
         scene, observation, alpha, beta, bundle,
-        _halo_free_progress(progress, alpha.size, own_rays, traced_rows != rows), maps)
+        _halo_free_progress(progress, alpha.size, own_rays, traced_rows != rows), maps,
+        raw=None if sampled is None else sampled[0])
     traced = time.perf_counter()
     own = None if traced_rows == rows else (rows[0] - traced_rows[0], rows[1] - traced_rows[0])
     if sensor:
@@ -131,6 +138,9 @@ def _render_band(scene, observation, rows, progress, maps=True):
             own, scene["image.width"], raw, g, hits, negative, shaded, alpha, beta)
     metadata = _still_metadata(scene, raw, shaded, negative, maps)
     metadata["trace_seconds"] = traced - started
+    metadata["sampling"] = sampling_metadata(sampling, None if sampled is None else sampled[2])
+    if sampled is not None:
+        shaded.products["interpolated"] = sampled[1]
     metadata["total_seconds"] = time.perf_counter() - started
     return _band_result(scene, rows, raw, g, hits, shaded, alpha, beta, metadata)
 
@@ -234,7 +244,8 @@ def _traced_and_shaded(scene, observation, x, y, bundle):
     return raw, shaded
 
 
-def trace_and_shade(scene, observation, alpha, beta, bundle, progress=None, maps=True):
+def trace_and_shade(scene, observation, alpha, beta, bundle, progress=None, maps=True, *,
+                    raw=None):
     """Trace a bundle as the scene asks and shade its disk crossings.
 
     ``alpha, beta`` are the rays' image-plane points (M).  Returns
@@ -242,9 +253,12 @@ def trace_and_shade(scene, observation, alpha, beta, bundle, progress=None, maps
     factors and shining crossings (N, orders), and the observing mode's
     :class:`~render.light.observing.Shaded`.  A camera with a sky also keeps each
     ray's final state (for its direction at infinity, :mod:`render.imaging.sky`).
-    ``maps=False`` lets the closed form skip phi and the delay (NaN then).
+    ``maps=False`` lets the closed form skip phi and the delay (NaN then).  ``raw``,
+    if given, holds the bundle's arrays already traced (adaptive sampling,
+    :mod:`render.imaging.adaptive`), which are then shaded as they are.
     """
-    raw = trace(scene.trace_settings(), alpha, beta, bundle, progress, maps)
+    if raw is None:
+        raw = trace(scene.trace_settings(), alpha, beta, bundle, progress, maps)
     g, hits = shining_crossings(scene, raw, bundle)
     shaded = shade(observation, scene, raw, g, hits, bundle, alpha, beta)
     return raw, g, hits, shaded

@@ -38,6 +38,7 @@ from ..errors import OutputWriteError
 from ..errors import SceneError
 from ..light.observing import PER_ORDER_PRODUCTS
 from ..guards.runs import run_tag
+from .adaptive import merge_sampling_info
 from .result import StillResult
 
 __all__ = ["TilePlan", "plan_still", "check_memory", "render_in_tiles",
@@ -46,6 +47,10 @@ __all__ = ["TilePlan", "plan_still", "check_memory", "render_in_tiles",
 BYTES_PER_PIXEL = 400
 BYTES_PER_ORDER = 240
 BYTES_TRUE_COLOUR = 200
+# Adaptive sampling's traced store and interpolants (render.imaging.adaptive): lam, E,
+# fate, counts, masks per pixel; r, phi, delay twice and the direction per order.
+BYTES_ADAPTIVE = 64
+BYTES_ADAPTIVE_ORDER = 56
 # Share of the budget one tile may take (the interpreter and its libraries, ~0.3 GB,
 # and the 8-bit picture of the PNG step need the rest).
 TILE_SHARE = 0.25
@@ -73,6 +78,8 @@ def bytes_per_pixel(values):
     per = BYTES_PER_PIXEL + BYTES_PER_ORDER * values["disk.orders"]
     if values["observing.mode"] == "true_colour":
         per += BYTES_TRUE_COLOUR
+    if values["tracing.sampling"] == "adaptive":
+        per += BYTES_ADAPTIVE + BYTES_ADAPTIVE_ORDER * values["disk.orders"]
     return per
 
 
@@ -294,6 +301,7 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
         _check_temporary_space(store, plan)
         metadata = None
         info = None
+        sampling = None
         counts = {}
         steps_sum = 0.0
         negative = 0
@@ -318,6 +326,7 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
             negative += meta["negative_energy_rays"]
             trace_seconds += meta["trace_seconds"]
             info = _merge_info(info, meta["observing"])
+            sampling = merge_sampling_info(sampling, meta["sampling"])
             if metadata is None:
                 metadata = dict(meta)
             del part
@@ -327,7 +336,7 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
         raise
     metadata.update({
         "fate_counts": counts, "steps_mean": steps_sum / total_rays, "observing": info,
-        "negative_energy_rays": negative,
+        "negative_energy_rays": negative, "sampling": sampling,
         "trace_seconds": trace_seconds, "total_seconds": time.perf_counter() - started,
         "tiles": {"count": plan.tiles, "rows_per_tile": plan.rows_per_tile,
                   "memory_budget_gb": plan.budget_bytes / 1e9,

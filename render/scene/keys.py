@@ -11,6 +11,7 @@ from dataclasses import dataclass
 
 from ..camera.observers import FRAMES, PLACEMENTS
 from ..geodesics.tracing import METHODS
+from ..imaging.adaptive import SAMPLINGS
 from ..imaging.sensor import FILTERS
 from ..imaging.sky import BACKDROPS
 from ..light.disk import SURFACES
@@ -211,6 +212,13 @@ KEYS = {spec.path: spec for spec in [
     _k("tracing.max_crossings", "int", 64, "-", "1 <= max_crossings <= 100000",
        "Cap on equatorial crossings followed per ray (photon-sphere grazers); then 'unresolved'.",
        low=1, high=100_000),
+    _k("tracing.sampling", "choice", "every_pixel", "-", "every_pixel, adaptive",
+       "every_pixel: trace every pixel; adaptive: trace a coarse grid, refine at edges and "
+       "photon rings, interpolate the smooth rest within tracing.sampling_tolerance "
+       "(README, Adaptive sampling; no sky or supersampling).", choices=SAMPLINGS),
+    _k("tracing.sampling_tolerance", "float", 1e-6, "-", "1e-12 <= sampling_tolerance <= 1e-2",
+       "Error bound of adaptively interpolated pixels: relative in r and g, absolute in "
+       "phi (rad) and in the delay below 1 M (relative above).", low=1e-12, high=1e-2),
     _k("tracing.memory_budget", "float", 2.0, "GB", "0.01 <= memory_budget <= 1024",
        "Memory one still may use; a larger one renders in row tiles, and one that cannot "
        "fit even so is refused (docs/robustness.md).", low=0.01, high=1024.0),

@@ -24,6 +24,7 @@ from .keys import (INTERPOLATIONS, KEYFRAME_PLACEMENTS, KEYFRAME_SECTIONS, KEYS,
                    SECTIONS, SYNONYMS)
 from ..geodesics.tracing import TraceSettings, resolve_method
 from ..spacetime.kerr import horizon_radii, isco_radius
+from ..imaging.adaptive import SamplingSettings, check_sampling
 from ..imaging.sensor import check_sensor, check_untiled
 from ..imaging.tiling import check_memory
 from ..light.observing import check_observing
@@ -164,6 +165,14 @@ class Scene:
             max_crossings=v["tracing.max_crossings"],
             stop_on_disk=v["disk.surface"] == "opaque", r_in=self.inner_radius,
             r_out=v["disk.outer_radius"], want_escape=v["sky.backdrop"] != "none")
+
+    def sampling_settings(self):
+        """How this scene's still samples its image plane (:class:`render.imaging.adaptive.SamplingSettings`)."""
+        v = self.values
+        return SamplingSettings(method=v["tracing.sampling"],
+                                tolerance=v["tracing.sampling_tolerance"],
+                                inner_radius=self.inner_radius,
+                                outer_radius=v["disk.outer_radius"], isco=isco_radius(self.spin))
 
 
 def _is_inside(path, folder):
@@ -420,6 +429,7 @@ def _check_consistency(values):
     check_observing(values)
 
     check_sensor(values)
+    check_sampling(values)
     _check_animation(values, inner)
     # Refuse, before any work, a still that cannot fit the memory budget even in tiles.
 
