@@ -1,5 +1,6 @@
 """Shared fixtures: small scenes so the suite stays fast."""
 
+import numpy as np
 import pytest
 
 import render.geodesics.closed_form
@@ -46,3 +47,21 @@ def run_cli(args, capsys):
     status = main([str(a) for a in args])
     captured = capsys.readouterr()
     return status, captured.out, captured.err
+
+
+def kerr_metric(r, theta, a):
+    """Boyer–Lindquist Kerr metric g_ab at (r, theta), coordinates (t, r, theta, phi).
+
+    Written out here from Boyer & Lindquist (1967) (Bardeen, Press & Teukolsky 1972,
+    eq. 2.1), independently of the package's own metric, for the tests to check it with.
+    """
+    sigma = r * r + a * a * np.cos(theta) ** 2
+    delta = r * r - 2 * r + a * a
+    s2 = np.sin(theta) ** 2
+    g = np.zeros((4, 4))
+    g[0, 0] = -(1 - 2 * r / sigma)
+    g[0, 3] = g[3, 0] = -2 * a * r * s2 / sigma
+    g[1, 1] = sigma / delta
+    g[2, 2] = sigma
+    g[3, 3] = (r * r + a * a + 2 * a * a * r * s2 / sigma) * s2
+    return g

@@ -2,6 +2,7 @@
 
 import numpy as np
 import pytest
+from conftest import kerr_metric
 
 from render import default_scene
 from render.film.sequence import plan_sequence
@@ -12,17 +13,7 @@ from render.spacetime.kerr import circular_orbit_time_component, keplerian_angul
 
 
 def _metric(r, theta, a):
-    """Kerr metric in Boyer–Lindquist coordinates (t, r, theta, phi), written out here."""
-    sigma = r * r + a * a * np.cos(theta) ** 2
-    delta = r * r - 2 * r + a * a
-    s2 = np.sin(theta) ** 2
-    g = np.zeros((4, 4))
-    g[0, 0] = -(1 - 2 * r / sigma)
-    g[0, 3] = g[3, 0] = -2 * a * r * s2 / sigma
-    g[1, 1] = sigma / delta
-    g[2, 2] = sigma
-    g[3, 3] = (r * r + a * a + 2 * a * a * r * s2 / sigma) * s2
-    return g
+    return kerr_metric(r, theta, a)
 
 
 def test_boosted_frame_is_orthonormal():

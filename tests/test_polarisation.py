@@ -5,6 +5,7 @@ import math
 
 import numpy as np
 import pytest
+from conftest import kerr_metric
 from scipy import linalg
 from scipy.integrate import solve_ivp
 
@@ -107,18 +108,8 @@ def test_tabulated_degree_matches_the_h_function_solution():
 # Transport: the Walker–Penrose constant against scipy parallel transport.
 
 def _kerr_metric(x, a):
-    """Boyer–Lindquist Kerr metric g_ab at x = (t, r, theta, phi), written out afresh."""
-    r, th = x[1], x[2]
-    sigma = r * r + a * a * math.cos(th) ** 2
-    delta = r * r - 2 * r + a * a
-    s2 = math.sin(th) ** 2
-    g = np.zeros((4, 4))
-    g[0, 0] = -(1 - 2 * r / sigma)
-    g[0, 3] = g[3, 0] = -2 * a * r * s2 / sigma
-    g[1, 1] = sigma / delta
-    g[2, 2] = sigma
-    g[3, 3] = (r * r + a * a + 2 * a * a * r * s2 / sigma) * s2
-    return g
+    """Boyer–Lindquist Kerr metric g_ab at x = (t, r, theta, phi) (tests/conftest.py)."""
+    return kerr_metric(x[1], x[2], a)
 
 
 def _christoffel(x, a, h=1e-5):
