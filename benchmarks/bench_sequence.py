@@ -35,7 +35,9 @@ commit, e.g. made with ``git worktree add PATH REV``): in the same interleaved
 rounds, ``python -m render sequence`` runs as a whole fresh process on each
 tree's own copy of the scene (same film, same ``--set`` values, default workers,
 video and every product included), after one small warm-up film per tree so that
-both use a warm numba cache.  ``against`` in the JSON holds each tree's best
+both use a warm numba cache.  So that both make the same film, both get this tree's
+``observer.field_of_view`` and this tree also ``observer.aim=frame`` (older trees
+point a moving camera along its boosted frame, and do not know the key).  ``against`` in the JSON holds each tree's best
 wall time, its CPU time (the process and its children) and ``speedup`` (older
 over this tree's best wall time; ``speedup_cpu`` the same in CPU time).
 
@@ -93,14 +95,18 @@ def main():
     runs = {"serial": [], "pool": []}
     trees = {"this": REPO, "older": Path(args.against).resolve()} if args.against else {}
     whole = {name: [] for name in trees}
-    for tree in trees.values():
-        _whole_command(tree, settings[1:] + ["animation.frames=2"])  # warm-up
+    same_film = {"this": ["observer.aim=frame"], "older": []}
+    film_settings = {name: settings + same_film[name]
+                     + [f"observer.field_of_view={scene['observer.field_of_view']!r}"]
+                     for name in trees}
+    for name, tree in trees.items():
+        _whole_command(tree, film_settings[name][1:] + ["animation.frames=2"])  # warm-up
     # Interleaved rounds (serial, pool, serial, pool, ...): on a shared machine the load
     # changes over minutes; the best round of each mode is the least disturbed one.
     for _ in range(args.rounds):
         for name, tree in trees.items():
             print(f"{name} tree ({tree}): whole command ...", file=sys.stderr, flush=True)
-            whole[name].append(_whole_command(tree, settings))
+            whole[name].append(_whole_command(tree, film_settings[name]))
             print(f"{name}: {whole[name][-1]}", file=sys.stderr, flush=True)
         for mode, workers in (("serial", 1), ("pool", args.workers)):
             if mode not in modes:

@@ -89,6 +89,55 @@ def test_aberration_and_doppler_of_a_moving_camera_far_away(direction, speed):
     assert np.allclose(bundle.energy_ratio, expected_ratio, rtol=1e-8)
 
 
+@pytest.mark.parametrize("direction, velocity", [((1.0, 0.0, 0.0), (0.0, 0.0, 0.6)),
+                                                 ((0.6, -0.8, 0.0), (0.3, 0.2, -0.5)),
+                                                 ((0.0, 0.0, 1.0), (0.0, 0.0, -0.9))])
+def test_aberrated_direction_follows_einsteins_formula(direction, velocity):
+    # Einstein (1905), sec. 7: with theta the angle between the photon's direction of travel
+    # and the observer's velocity, cos(theta') = (cos(theta) - v) / (1 - v cos(theta)); the
+    # plane of n and v is kept (common practice).  Tolerance 1e-12: a few roundings.
+    from render.camera.observers import aberrated_direction
+
+    n, v = np.array(direction), np.array(velocity)
+    speed = np.linalg.norm(v)
+    seen = aberrated_direction(n, v)
+    cos_rest = n @ v / speed
+    assert np.linalg.norm(seen) == pytest.approx(1.0, abs=1e-12)
+    assert seen @ v / speed == pytest.approx((cos_rest - speed) / (1 - speed * cos_rest),
+                                             abs=1e-12)
+    assert np.linalg.det(np.stack([n, v, seen])) == pytest.approx(0.0, abs=1e-12)
+
+
+@pytest.mark.parametrize("velocity", [(0.0, 0.0, 0.35), (0.2, -0.3, 0.4), (-0.5, 0.0, 0.0)])
+def test_a_camera_aimed_at_the_hole_sees_it_in_the_middle(velocity):
+    # observer.aim: hole.  The middle pixel of the moving camera must receive the photon that
+    # the camera at rest (ZAMO) receives in its middle pixel, travelling straight out along
+    # e_r: the same lam and eta, and the moving camera measures its energy multiplied by the
+    # Doppler factor gamma (1 - v_r) (Einstein 1905, sec. 7).  aim: frame keeps the boosted
+    # axes, so there the middle pixel sees another photon.  Tolerance 1e-10: a few roundings
+    # in the constants of motion at r = 12 M.
+    a, r, inclination = 0.7, 12.0, 75.0
+    x, y = np.zeros(1), np.zeros(1)
+    rest = camera_rays(x, y, a, r, inclination, 0.0, "zamo")
+    aimed = camera_rays(x, y, a, r, inclination, 0.0, "zamo", velocity=velocity, aim="hole")
+    along_frame = camera_rays(x, y, a, r, inclination, 0.0, "zamo", velocity=velocity)
+    assert aimed.lam == pytest.approx(rest.lam, abs=1e-10)
+    assert aimed.eta == pytest.approx(rest.eta, rel=1e-10, abs=1e-10)
+    gamma = 1.0 / np.sqrt(1.0 - np.dot(velocity, velocity))
+    assert aimed.energy_ratio / rest.energy_ratio == pytest.approx(gamma * (1 - velocity[0]),
+                                                                   rel=1e-12)
+    if velocity[1:] != (0.0, 0.0):   # purely radial motion aberrates nothing on the axis
+        assert abs(along_frame.lam[0] - rest.lam[0]) + abs(along_frame.eta[0] - rest.eta[0]) > 1e-3
+
+
+def test_scenes_aim_moving_cameras_at_the_hole_by_default():
+    # The scene key reaches the camera: a film frame's viewpoint carries it.
+    assert default_scene().viewpoint().aim == "hole"
+    assert default_scene(**{"observer.aim": "frame"}).viewpoint().aim == "frame"
+    with pytest.raises(SceneError, match="observer.aim"):
+        default_scene(**{"observer.aim": "sideways"})
+
+
 def test_keplerian_orbit_camera_moves_with_the_circular_geodesic():
     # The orbit camera on the equator at r = 12 M is the circular geodesic with
     # dphi/dt = 1/(r^1.5 + a) and dt/dtau = u^t (Bardeen, Press & Teukolsky 1972,

@@ -30,7 +30,12 @@ Camera (``placement: camera``)
 
     The camera looks at the hole (-e_r), with "right" along +e_phi and "up"
     along -e_theta, so that at large distance its image matches the distant
-    observer's.  It is a pinhole whose image plane lies at the hole's distance:
+    observer's.  A moving camera (films) uses its frame boosted by its velocity;
+    with ``aim="hole"`` its axes are then turned (the smallest rotation) so that its
+    optical axis looks where the camera at rest looked, as aberration shows that
+    direction to the moving camera: the hole stays in the middle of the picture.
+    With ``aim="frame"`` the axes stay those of the boosted frame and aberration
+    pushes the hole towards the direction of motion.  It is a pinhole whose image plane lies at the hole's distance:
     a pixel at image-plane position (x, y) in M looks along the local
     direction proportional to (-1, x/r_o, y/r_o) in (r, phi, "up") components.
 
@@ -61,12 +66,18 @@ __all__ = [
     "observer_frame",
     "check_observer_position",
     "FRAMES",
+    "AIMS",
+    "aberrated_direction",
     "camera_photons",
 ]
 
 # Observer placements: a camera at a finite radius, or the exact observer at infinity.
 PLACEMENTS = ("camera", "distant")
 FRAMES = ("zamo", "static")
+# Where a moving camera points its optical axis: at the hole as it appears to the moving
+# camera (the light that reaches the camera at rest from straight ahead), or along its own
+# boosted frame's radial axis.
+AIMS = ("hole", "frame")
 # Below this |sin(theta)| an observer counts as sitting on the spin axis, where
 # the Boyer–Lindquist phi direction is undefined and is chosen per ray instead.
 _POLE_SINE = 1e-12
@@ -263,7 +274,7 @@ def observer_frame(spin, r, theta, frame):
 
 
 def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="zamo",
-                velocity=None):
+                velocity=None, aim="frame"):
     """Initial states of rays reaching a camera at finite distance.
 
     Parameters
@@ -283,6 +294,10 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
         the pixels are then set up in the boosted frame
         (:func:`render.spacetime.motion.boost_frame`), so aberration and Doppler shift
         are included.
+    aim : {"frame", "hole"}
+        A moving camera's optical axis: along the boosted frame's radial axis, or
+        turned to where the camera at rest looked, as the moving camera sees it
+        (:func:`aberrated_direction`; see the module docstring).  Unused at rest.
 
     Returns
     -------
@@ -300,7 +315,7 @@ def camera_rays(x, y, spin, distance, inclination_deg, azimuth_deg=0.0, frame="z
     on_axis = sin_o == 0.0
     if on_axis:
         phi0, n_theta, n_phi = _on_axis_directions(n_theta, n_phi, phi_o, cos_o)
-    tetrad = _camera_tetrad(a, r, theta, frame, on_axis, cos_o, velocity)
+    tetrad = _camera_tetrad(a, r, theta, frame, on_axis, cos_o, velocity, aim)
     # Photon 4-momentum with unit energy in the camera frame.
     p = (tetrad[0][:, None] + n_r * tetrad[1][:, None] + n_theta * tetrad[2][:, None]
          + n_phi * tetrad[3][:, None])
@@ -366,17 +381,81 @@ def _on_axis_directions(n_theta, n_phi, phi_o, cos_o):
     return np.arctan2(ty, tx), -sign * np.hypot(n_theta, n_phi), np.zeros_like(n_phi)
 
 
-def _camera_tetrad(a, r, theta, frame, on_axis, cos_o, velocity):
-    """The camera's tetrad: ``frame`` at its position, boosted by ``velocity`` if given."""
+def _camera_tetrad(a, r, theta, frame, on_axis, cos_o, velocity, aim="frame"):
+    """The camera's tetrad: ``frame`` at its position, boosted by ``velocity`` if given.
+
+    With ``aim="hole"`` the boosted spatial axes are turned so that the first one
+    points along the aberrated radial direction (:func:`aberrated_direction`).
+    """
+    if aim not in AIMS:
+        raise ValueError(f"aim must be one of {', '.join(AIMS)}, got {aim!r}")
     if on_axis:
         tetrad = observer_frame(a, r, 1e-8 if cos_o > 0 else np.pi - 1e-8, frame)
         tetrad[3] = 0.0  # never used: n_phi = 0 on the axis
     else:
         tetrad = observer_frame(a, r, theta, frame)
     if velocity is not None:
-
         tetrad = boost_frame(tetrad, velocity)
+        if aim == "hole":
+            turn = _rotation_taking_x_to(aberrated_direction((1.0, 0.0, 0.0), velocity))
+            # Pixel direction n on the new axes is turn @ n on the boosted ones.
+            tetrad[1:] = turn.T @ tetrad[1:]
     return tetrad
+
+
+def aberrated_direction(direction, velocity):
+    """Direction of travel of a photon seen by an observer moving with ``velocity``.
+
+    Parameters
+    ----------
+    direction : array_like, shape (3,)
+        Unit direction of travel in the rest frame (any orthonormal triad).
+    velocity : array_like, shape (3,)
+        The moving observer's 3-velocity in the same triad, in units of c; |v| < 1.
+
+    Returns
+    -------
+    ndarray, shape (3,)
+        The unit direction of travel in the moving observer's boosted triad
+        (:func:`render.spacetime.motion.boost_frame`).
+
+    References
+    ----------
+    Einstein (1905), Ann. Phys. 17, 891, section 7 (aberration); Rindler (2006),
+    Relativity: Special, General, and Cosmological, eq. 4.8 (the vector form
+    n' = [n + ((gamma - 1)(n.v)/v^2 - gamma) v] / [gamma (1 - n.v)]).
+
+    Examples
+    --------
+    >>> [round(float(x), 6) for x in aberrated_direction((0.0, 1.0, 0.0), (0.6, 0.0, 0.0))]
+    [-0.6, 0.8, 0.0]
+    """
+    n = np.asarray(direction, dtype=float).reshape(3)
+    v = np.asarray(velocity, dtype=float).reshape(3)
+    speed2 = float(v @ v)
+    if speed2 == 0.0:
+        return n.copy()
+    gamma = 1.0 / np.sqrt(1.0 - speed2)
+    along = float(n @ v)
+    moved = n + ((gamma - 1.0) * along / speed2 - gamma) * v
+    return moved / (gamma * (1.0 - along))
+
+
+def _rotation_taking_x_to(target):
+    """The smallest rotation (3 x 3) that takes (1, 0, 0) to the unit vector ``target``.
+
+    Rodrigues' formula about the axis x cross target; the identity if they coincide.
+    """
+    target = np.asarray(target, dtype=float) / np.linalg.norm(target)
+    axis = np.cross((1.0, 0.0, 0.0), target)
+    sine, cosine = float(np.linalg.norm(axis)), float(target[0])
+    if sine == 0.0:
+        if cosine > 0.0:
+            return np.eye(3)
+        return np.diag([-1.0, -1.0, 1.0])   # half a turn about the third axis
+    k = axis / sine
+    cross = np.array([[0.0, -k[2], k[1]], [k[2], 0.0, -k[0]], [-k[1], k[0], 0.0]])
+    return np.eye(3) + sine * cross + (1.0 - cosine) * cross @ cross
 
 
 def _constants_of_motion(p, a, r, theta, sin_o, cos_o, on_axis):
@@ -444,6 +523,8 @@ class Viewpoint:
         Counter-clockwise rotation of the image about the line of sight.
     width, height : int
         Pixels across and down.
+    aim : str
+        Where a moving camera points (one of :data:`AIMS`; see :func:`camera_rays`).
     """
 
     placement: str
@@ -456,6 +537,7 @@ class Viewpoint:
     roll_deg: float = 0.0
     width: int = 64
     height: int = 64
+    aim: str = "hole"
 
     def grid(self, rows=None):
         """Image-plane coordinates (alpha, beta) in M of the pixel centres (see :func:`image_plane_grid`)."""
@@ -470,7 +552,7 @@ class Viewpoint:
         if self.placement == "distant":
             return distant_observer_rays(x, y, self.spin, self.inclination_deg, self.azimuth_deg)
         return camera_rays(x, y, self.spin, self.distance, self.inclination_deg,
-                           self.azimuth_deg, self.frame, velocity=velocity)
+                           self.azimuth_deg, self.frame, velocity=velocity, aim=self.aim)
 
     def rays(self, rows=None, velocity=None):
         """(alpha, beta, bundle) of the pixel centres, or of the band ``rows = (start, stop)``.

@@ -9,7 +9,7 @@ name added there is accepted here without a second list to keep in step.
 import math
 from dataclasses import dataclass
 
-from ..camera.observers import FRAMES, PLACEMENTS
+from ..camera.observers import AIMS, FRAMES, PLACEMENTS
 from ..geodesics.tracing import METHODS
 from ..imaging.adaptive import SAMPLINGS
 from ..imaging.sensor import FILTERS
@@ -80,6 +80,11 @@ KEYS = {spec.path: spec for spec in [
        "Boyer–Lindquist azimuth of the observer.", low=-360.0, high=360.0),
     _k("observer.frame", "choice", "zamo", "-", ", ".join(FRAMES),
        "Local frame of the camera: zamo (zero angular momentum) or static.", choices=FRAMES),
+    _k("observer.aim", "choice", "hole", "-", ", ".join(AIMS),
+       "Where a moving camera (animation.camera_path orbit, plunge, keyframed) points: hole "
+       "keeps the hole in the middle of the picture against aberration; frame points along "
+       "its boosted frame's radial axis, so the hole drifts towards the direction of motion.",
+       choices=AIMS),
     _k("observer.field_of_view", "float", 46.0, "M", "0 < field_of_view <= 10000",
        "Full width of the image in M at the hole's distance.", low=0.0, high=1e4, low_open=True),
     _k("observer.roll", "float", 0.0, "deg", "-360 <= roll <= 360",

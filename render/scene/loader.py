@@ -149,7 +149,7 @@ class Scene:
                          inclination_deg=v["observer.inclination"],
                          azimuth_deg=v["observer.azimuth"], frame=v["observer.frame"],
                          field_of_view=v["observer.field_of_view"], roll_deg=v["observer.roll"],
-                         width=v["image.width"], height=v["image.height"])
+                         width=v["image.width"], height=v["image.height"], aim=v["observer.aim"])
 
     def trace_settings(self):
         """How this scene's rays are traced (:class:`render.geodesics.tracing.TraceSettings`).
