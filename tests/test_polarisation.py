@@ -462,3 +462,22 @@ def test_outputs_carry_the_stokes_maps(small_scene, tmp_path):
     with fits.open(paths["fits"]) as hdus:
         assert hdus["POLANG"].header["POLCONV"] == "IAU"
         assert np.allclose(hdus["STOKESQ"].data, np.flipud(result.products["stokes_q"]))
+
+
+def test_ticks_cover_every_part_of_the_disk_the_picture_shows(tmp_path):
+    # Regression: ticks were drawn only where a cell had 5 % of the brightest cell's
+    # intensity, so on a log picture (2.5 decades here) the receding half of the disk, shown
+    # plainly, had no tick at all.  Now both sides of the disk get ticks (common practice:
+    # a polarisation map ticks everything it shows).
+    from render import load_scene
+    from render.imaging.ticks import TICK_COLOUR
+
+    repo = __import__("pathlib").Path(__file__).resolve().parents[1]
+    scene = load_scene(repo / "scenes" / "thermal-bolometric.yaml",
+                       ["image.width=192", "image.height=192", "output.fits=false",
+                        "polarisation.model=electron_scattering", "polarisation.ticks=true"])
+    pixels = render_still(scene).pixels
+    ticked = np.all(pixels == np.array(TICK_COLOUR, dtype=np.uint8), axis=2)
+    # The receding side: the right third of the picture (the approaching side is left).
+    left, right = ticked[:, :64].sum(), ticked[:, 128:].sum()
+    assert left > 50 and right > 50, (left, right)

@@ -77,8 +77,20 @@ def _with_ticks(scene, result):
     if not scene["polarisation.ticks"] or "stokes_q" not in result.products:
         return result
     p = result.products
-    result.pixels = draw_ticks(result.pixels, p["stokes_i"], p["stokes_q"], p["stokes_u"])
+    result.pixels = draw_ticks(result.pixels, p["stokes_i"], p["stokes_q"], p["stokes_u"],
+                               min_fraction=_faintest_ticked(scene))
     return result
+
+
+def _faintest_ticked(scene):
+    """Intensity, relative to the brightest cell, below which a cell gets no tick.
+
+    The log and asinh scalings show display.decades of intensity, so every cell they show
+    gets its tick; the others show about two decades.
+    """
+    if scene["display.scaling"] in ("log", "asinh"):
+        return 10.0 ** -scene["display.decades"]
+    return 0.01
 
 
 def _with_disk_integrals(scene, observation, result):

@@ -27,6 +27,8 @@ J0(pi d rho) and its ringing at long baselines).
 
 from dataclasses import dataclass
 
+import warnings
+
 import numpy as np
 
 __all__ = ["VisibilityGrid", "visibility_grid", "sample_visibilities", "radial_profile",
@@ -170,11 +172,15 @@ def first_null_diameter(rho, amplitude):
 
 
 def thin_ring_fit(rho, amplitude, rho_max=None):
-    """Least-squares fit of |V| = F |J0(pi d rho)| to a radial profile: (d, sigma_d, F).
+    """Least-squares fit of |V| = F |J0(pi d rho)| to a radial profile: (d, sigma_d, F, rms).
 
     The fit uses rho <= ``rho_max`` (default: up to the third null of the first-null
     estimate); sigma_d is the standard error from the fit's covariance scaled by the
-    residual scatter (scipy.optimize.curve_fit, absolute_sigma=False).
+    residual scatter (scipy.optimize.curve_fit, absolute_sigma=False), and ``rms`` the
+    root-mean-square residual over the fitted points relative to F: how well a thin
+    ring describes the profile at all.  All four are NaN when the profile has no null
+    or the fit does not converge (an image that is not ring-like, such as a disk seen
+    whole).
 
     References
     ----------
@@ -183,9 +189,10 @@ def thin_ring_fit(rho, amplitude, rho_max=None):
     from scipy import optimize, special  # here: scipy.optimize costs ~1 s of every start
 
     rho, amplitude = np.asarray(rho), np.asarray(amplitude)
+    failed = (np.nan, np.nan, np.nan, np.nan)
     d0, _ = first_null_diameter(rho, amplitude)
     if not np.isfinite(d0):
-        return np.nan, np.nan, np.nan
+        return failed
     if rho_max is None:
         rho_max = float(special.jn_zeros(0, 3)[-1]) / (np.pi * d0)
     keep = np.isfinite(amplitude) & (rho <= rho_max)
@@ -193,6 +200,14 @@ def thin_ring_fit(rho, amplitude, rho_max=None):
     def model(r, flux, d):
         return flux * np.abs(special.j0(np.pi * d * r))
 
-    (flux, d), cov = optimize.curve_fit(model, rho[keep], amplitude[keep],
-                                        p0=(amplitude[keep][0], d0))
-    return float(d), float(np.sqrt(cov[1, 1])), float(flux)
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", optimize.OptimizeWarning)
+            (flux, d), cov = optimize.curve_fit(model, rho[keep], amplitude[keep],
+                                                p0=(amplitude[keep][0], d0))
+    except RuntimeError:   # no convergence within curve_fit's evaluation budget
+        return failed
+    if not (np.isfinite(cov[1, 1]) and flux != 0.0):
+        return failed
+    rms = np.sqrt(np.mean((amplitude[keep] - model(rho[keep], flux, d)) ** 2)) / abs(flux)
+    return float(d), float(np.sqrt(cov[1, 1])), float(flux), float(rms)

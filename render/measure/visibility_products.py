@@ -15,11 +15,12 @@ centre, V = sum F exp(-2 pi i (u l + v m))).
 """
 
 import csv
+import warnings
 from pathlib import Path
 
 import numpy as np
 
-from ..errors import SceneError
+from ..errors import NullrayWarning, SceneError
 from ..light.observing import observing_frequency_hz, pixel_angle_rad
 from ..light.thermal import cgs
 from ..output.files import write_npz
@@ -31,6 +32,9 @@ __all__ = ["visibility_paths", "read_baselines", "measure_visibilities", "write_
 
 GIGA = 1e9
 UAS_PER_RAD = 180.0 / np.pi * 3600.0 * 1e6
+# Above this rms residual (relative to the fitted flux) a thin ring does not describe a
+# visibility profile and its ring diameters are reported with a warning.
+RING_LIKE_RMS = 0.1
 
 
 def visibility_paths(scene):
@@ -102,7 +106,13 @@ def measure_visibilities(result, scene, baselines=None):
     grid = visibility_grid(image, pixel, scene["visibilities.padding"])
     rho, amplitude, count = radial_profile(grid)
     null_d, _ = first_null_diameter(rho, amplitude)
-    fit_d, fit_error, _ = thin_ring_fit(rho, amplitude)
+    fit_d, fit_error, _, fit_rms = thin_ring_fit(rho, amplitude)
+    if not fit_rms <= RING_LIKE_RMS:   # NaN too: no null, or no convergence
+        how = ("the thin-ring fit did not converge" if np.isnan(fit_rms) else
+               f"a thin ring fits it with an rms residual of {fit_rms:.0%} of its flux")
+        warnings.warn(f"visibilities: the image's radial visibility profile is not a thin "
+                      f"ring's ({how}); its ring diameters are not meaningful "
+                      "(docs/polarisation.md)", NullrayWarning, stacklevel=2)
     info = {
         "flux_unit": unit, "total_flux": float(np.nansum(image)),
         "conventions": "u east, v north (wavelengths); phase centre at the image centre; "
@@ -112,6 +122,7 @@ def measure_visibilities(result, scene, baselines=None):
         "ring_diameter_first_null_uas": float(null_d * UAS_PER_RAD),
         "ring_diameter_fit_uas": float(fit_d * UAS_PER_RAD),
         "ring_diameter_fit_error_uas": float(fit_error * UAS_PER_RAD),
+        "ring_fit_rms_relative": fit_rms,
     }
     out = {"grid": grid, "profile": (rho, amplitude, count), "info": info}
     if baselines is not None:
