@@ -83,6 +83,25 @@ KEYFRAMES_IGNORED = ("animation.keyframes are ignored by a still, which shows th
                      "--set animation.frames=1` instead")
 
 
+def still_only_keys(scene):
+    """One line naming the keys of ``scene`` that a film ignores, or None.
+
+    Frames are unpolarised, carry no visibilities and trace every pixel
+    (docs/animation.md): a film given these keys says so rather than drop them silently.
+    """
+    ignored = []
+    if scene["polarisation.model"] != "none":
+        ignored.append(f"polarisation.model = {scene['polarisation.model']!r}")
+    if scene["visibilities.compute"]:
+        ignored.append("visibilities.compute = true")
+    if scene["tracing.sampling"] != "every_pixel":
+        ignored.append(f"tracing.sampling = {scene['tracing.sampling']!r}")
+    if not ignored:
+        return None
+    return (f"a film ignores {', '.join(ignored)}: its frames are unpolarised, carry no "
+            "visibilities and trace every pixel; render a still (`nullray still`) for them")
+
+
 def _warn(result, message):
     """Record a warning in the still's metadata (the command line prints it) and warn API users."""
     result.metadata.setdefault("observing", {}).setdefault("warnings", []).append(message)
@@ -237,6 +256,9 @@ def render_sequence(scene, output_dir="outputs", *, workers=1, scheduler=None, o
         raise UsageError(f"--workers {workers} is not allowed; expected N >= 1")
     if preview or scene["image.preview"]:
         scene = preview_film(scene)
+    ignored = still_only_keys(scene)
+    if ignored:
+        warnings.warn(ignored, NullrayWarning, stacklevel=2)
     for folder in (Path(output_dir), Path(output_dir) / scene["name"]):
         sweep_dead_temporaries(folder)   # what runs killed with SIGKILL left behind
     client = connect(scheduler) if scheduler is not None else None

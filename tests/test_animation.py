@@ -637,3 +637,27 @@ def test_a_film_leaves_the_temporaries_of_a_live_run_alone(tmp_path):
         path.write_bytes(b"half a frame")
     sequence.render_sequence(scene, tmp_path, overwrite=True, products=False)
     assert live_part.exists() and not dead_part.exists()
+
+
+def test_a_film_says_which_still_only_keys_it_ignores(small_scene, tmp_path):
+    # Frames carry no polarisation or visibilities and trace every pixel: a film given
+    # those keys names them in one warning instead of dropping them silently (house rule:
+    # nothing the user asked for is ignored without a word).
+    from render.errors import NullrayWarning
+
+    scene = small_scene(**{"image.width": 8, "image.height": 8, "animation.frames": 2,
+                           "polarisation.model": "electron_scattering",
+                           "visibilities.compute": True, "tracing.sampling": "adaptive"})
+    with pytest.warns(NullrayWarning) as caught:
+        render_sequence(scene, tmp_path, products=False)
+    lines = [str(w.message) for w in caught if "a film ignores" in str(w.message)]
+    assert len(lines) == 1 and "\n" not in lines[0]
+    for key in ("polarisation.model", "visibilities.compute", "tracing.sampling"):
+        assert key in lines[0]
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.filterwarnings("error", message="a film ignores", category=NullrayWarning)
+        render_sequence(small_scene(**{"image.width": 8, "image.height": 8,
+                                       "animation.frames": 2}), tmp_path / "plain",
+                        products=False)
