@@ -234,3 +234,19 @@ def test_fits_verifies_and_holds_the_maps(tmp_path, monochromatic_still):
         assert scene_from_dict(yaml.safe_load(text)).values == scene.values
     with pytest.raises(OutputExists):
         write_fits(path, result)
+
+
+@pytest.mark.parametrize("model", ["none", "electron_scattering"])
+def test_a_polarised_spectrum_plot_gains_a_degree_and_angle_panel(tmp_path, model):
+    # The spectrum PNG of a polarised still adds a panel of the degree and the angle against
+    # frequency under nu F_nu (issue 17: the angle's rotation with energy is the
+    # observable), so its figure is taller: 6.4 x 6.6 in at 110 dpi against 6.4 x 4.4 in.
+    from render.api import make_still
+
+    scene = default_scene(**{"name": "shot", "image.width": 16, "image.height": 16,
+                             "observer.placement": "distant", "observing.mode": "spectrum",
+                             "emission.law": "novikov_thorne", "output.npz": False,
+                             "polarisation.model": model})
+    _, paths = make_still(scene, tmp_path)
+    with Image.open(paths["spectrum_png"]) as picture:
+        assert picture.size == ((704, 726) if model != "none" else (704, 484))

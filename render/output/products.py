@@ -494,19 +494,51 @@ def _title(metadata):
             f"D = {doc['black_hole']['distance']:.3g} pc")
 
 
+# nu F_nu is drawn down to this fraction of its peak: a thermal spectrum's Wien tail would
+# otherwise take most of the plot's height (common practice for broad-band spectra).
+SPECTRUM_PLOT_DECADES = 8
+
+
 def _spectrum_figure(fig, table, metadata):
-    ax = fig.add_subplot()
+    polarised = "polarised_degree" in table and np.any(
+        np.isfinite(table["polarised_degree"]))
+    if polarised:
+        fig.set_size_inches(6.4, 6.6)
+        ax, ax_degree = fig.subplots(2, 1, sharex=True, height_ratios=(2, 1))
+    else:
+        ax = fig.add_subplot()
     nu = table["frequency_hz"]
+    peak = 0.0
     for key, label in (("nufnu_relativistic_erg_s_cm2", "ray-traced (relativistic)"),
                        ("nufnu_flat_erg_s_cm2", "flat space (no relativistic effects)")):
         values = np.where(table[key] > 0, table[key], np.nan)
         ax.loglog(nu, values, label=label)
-    ax.set_xlabel("frequency nu [Hz]")
+        peak = max(peak, float(np.nanmax(values, initial=0.0)))
+    if peak > 0.0:
+        ax.set_ylim(bottom=max(ax.get_ylim()[0], peak * 10.0 ** -SPECTRUM_PLOT_DECADES))
     ax.set_ylabel("nu F_nu [erg s^-1 cm^-2]")
     ax.set_title(_title(metadata), fontsize=8)
     ax.legend(fontsize=8)
+    if polarised:
+        _polarisation_panel(ax_degree, nu, table)
+    (ax_degree if polarised else ax).set_xlabel("frequency nu [Hz]")
     fig.tight_layout()
     return fig
+
+
+def _polarisation_panel(ax, nu, table):
+    """Degree (%) and angle (deg, right axis) of the disk's light against frequency."""
+    ax.semilogx(nu, 100.0 * table["polarised_degree"], color="C2", label="degree")
+    ax.set_ylabel("degree [%]", color="C2")
+    angle = np.asarray(table["polarisation_angle_deg"], dtype=float)
+    finite = np.isfinite(angle)
+    unwrapped = np.full(angle.shape, np.nan)
+    # The angle is defined modulo 180 deg: unwrap it so its rotation shows as a curve.
+    unwrapped[finite] = np.degrees(np.unwrap(np.radians(2.0 * angle[finite]))) / 2.0
+    twin = ax.twinx()
+    twin.semilogx(nu, unwrapped, color="C3", linestyle="--", label="angle (IAU)")
+    twin.set_ylabel("angle, IAU [deg]", color="C3")
+    ax.grid(alpha=0.3)
 
 
 def _line_figure(fig, table, metadata):
