@@ -322,11 +322,13 @@ def _along(across, weights, dj, is_angle):
 
 
 @njit(cache=True)
-def _interpolated_at(values, slot, ci, cj, q, di, dj, stride, pad, weights, is_angle, v, across):
-    """The cell's cubic interpolant of ``values`` (order q) at offset (di, dj) in the cell."""
+def _interpolated_at(values, slot, ci, cj, q, offsets, stride, pad, weights, is_angle, v, across,
+                     out):
+    """The cell's cubic interpolant of ``values`` (order q) at each offset (di, dj) in the cell."""
     _stencil(values, slot, ci, cj, q, stride, pad, is_angle, v)
-    _across(v, weights, di, across)
-    return _along(across, weights, dj, is_angle)
+    for t in range(offsets.shape[0]):
+        _across(v, weights, offsets[t, 0], across)
+        out[t] = _along(across, weights, offsets[t, 1], is_angle)
 
 
 @njit(cache=True)
@@ -358,39 +360,45 @@ def _tests_passed(cells_i, cells_j, offsets, stride, pad, weights, slot, fate, n
     pixel must be in the class of the cell's nodes, and so must the interpolated r.
     """
     ok = np.empty(cells_i.size, dtype=np.bool_)
+    n_tests = offsets.shape[0]
     for k in prange(cells_i.size):
         ci, cj = cells_i[k], cells_j[k]
         v = np.empty((4, 4))
         across = np.empty(4)
+        r_value, phi_value, delay_value = np.empty(n_tests), np.empty(n_tests), np.empty(n_tests)
         node = slot[pad + ci * stride, pad + cj * stride]
         passed = True
-        for t in range(offsets.shape[0]):
-            di, dj = offsets[t, 0], offsets[t, 1]
-            test = slot[pad + ci * stride + di, pad + cj * stride + dj]
+        for t in range(n_tests):
+            test = slot[pad + ci * stride + offsets[t, 0], pad + cj * stride + offsets[t, 1]]
             if _ray_class(fate, n_crossings, test) != _ray_class(fate, n_crossings, node):
                 passed = False
-            for q in range(r.shape[1]):
-                r_value = _interpolated_at(r, slot, ci, cj, q, di, dj, stride, pad, weights,
-                                           False, v, across)
+        for q in range(r.shape[1]):
+            if not passed:
+                break
+            node_class = _order_class(r[node, q], inward[node, q], inner_radius, outer_radius,
+                                      isco)
+            _interpolated_at(r, slot, ci, cj, q, offsets, stride, pad, weights, False, v, across,
+                             r_value)
+            if maps:
+                _interpolated_at(phi, slot, ci, cj, q, offsets, stride, pad, weights, True, v,
+                                 across, phi_value)
+                _interpolated_at(delay, slot, ci, cj, q, offsets, stride, pad, weights, False, v,
+                                 across, delay_value)
+            for t in range(n_tests):
+                test = slot[pad + ci * stride + offsets[t, 0], pad + cj * stride + offsets[t, 1]]
                 r_exact = r[test, q]
-                g_value = keplerian_redshift(r_value, lam[test], energy_ratio[test], spin, r_min)
+                g_value = keplerian_redshift(r_value[t], lam[test], energy_ratio[test], spin, r_min)
                 g_exact = keplerian_redshift(r_exact, lam[test], energy_ratio[test], spin, r_min)
                 order = _order_class(r_exact, inward[test, q], inner_radius, outer_radius, isco)
-                if not (_within(r_value, r_exact, tolerance, 0)
+                if not (_within(r_value[t], r_exact, tolerance, 0)
                         and _within(g_value, g_exact, tolerance, 0)
-                        and order == _order_class(r[node, q], inward[node, q], inner_radius,
+                        and order == node_class
+                        and order == _order_class(r_value[t], inward[test, q], inner_radius,
                                                   outer_radius, isco)
-                        and order == _order_class(r_value, inward[test, q], inner_radius,
-                                                  outer_radius, isco)):
+                        and (not maps or (_within(phi_value[t], phi[test, q], tolerance, 1)
+                                          and _within(delay_value[t], delay[test, q],
+                                                      tolerance, 2)))):
                     passed = False
-                if maps:
-                    phi_value = _interpolated_at(phi, slot, ci, cj, q, di, dj, stride, pad,
-                                                 weights, True, v, across)
-                    delay_value = _interpolated_at(delay, slot, ci, cj, q, di, dj, stride, pad,
-                                                   weights, False, v, across)
-                    if not (_within(phi_value, phi[test, q], tolerance, 1)
-                            and _within(delay_value, delay[test, q], tolerance, 2)):
-                        passed = False
         ok[k] = passed
     return ok
 
@@ -595,7 +603,8 @@ def _assembled(store, settings, levels, accepted_by):
         if store.maps:
             _fill_cells(ci, cj, stride, p, weights, store.slot, f["phi"], True, raw["phi"])
             _fill_cells(ci, cj, stride, p, weights, store.slot, f["delay"], False, raw["delay"])
-    info = {"traced_rays": int(store.traced), "interpolated_pixels": int(interpolated.sum()),
+    info = {"traced_rays": int(store.traced),
+            "interpolated_pixels": int(np.count_nonzero(interpolated)),
             "pixels": int(pixels), "tolerance": settings.tolerance,
             "strides": list(settings.strides)}
     return raw, interpolated, info
