@@ -37,7 +37,8 @@ from numba import njit, prange
 
 from ..errors import SceneError
 from ..geodesics.tracing import trace
-from ..light.disk import redshift_factor
+from ..light.disk import keplerian_redshift
+from ..spacetime.kerr import isco_radius
 
 __all__ = ["SAMPLINGS", "SamplingSettings", "sample_band", "image_plane_points",
            "check_sampling", "sampling_metadata", "merge_sampling_info"]
@@ -155,163 +156,351 @@ def _cubic_weights(stride):
 
 
 class _Store:
-    """Traced values on an extended pixel grid (the band plus virtual nodes around it)."""
+    """Traced rays of a band, kept compactly, and where on the extended grid each one lies.
 
-    ORDER_FIELDS = ("r", "phi", "delay", "inward")
-    RAY_FIELDS = ("fate", "n_crossings", "steps")
+    The extended grid is the band plus virtual nodes around it (``pad`` pixels before,
+    2 ``pad`` after).  ``slot[i, j]`` is the row of the point (i, j) in the traced
+    arrays (``fields``, ``lam``, ``energy_ratio``), or -1 while it is not traced.
+    """
 
-    def __init__(self, settings, viewpoint, trace_settings, rows, pad, maps):
-        self.settings, self.viewpoint, self.trace_settings = settings, viewpoint, trace_settings
+    def __init__(self, viewpoint, trace_settings, rows, pad, maps):
+        self.viewpoint, self.trace_settings = viewpoint, trace_settings
         self.maps = maps
         self.row0 = rows[0]
         self.pad = pad
         self.shape = (rows[1] - rows[0] + 3 * pad, viewpoint.width + 3 * pad)
-        self.known = np.zeros(self.shape, dtype=bool)
-        self.stamp = np.zeros(self.shape, dtype=np.int64)
+        self.slot = np.full(self.shape, -1, dtype=np.int64)
         self.fields = {}
-        self.lam = np.full(self.shape, np.nan)
-        self.energy_ratio = np.full(self.shape, np.nan)
+        self.lam = np.empty(0)
+        self.energy_ratio = np.empty(0)
         self.traced = 0
 
-    def points(self, i, j):
-        return image_plane_points(self.viewpoint, i - self.pad + self.row0, j - self.pad)
-
     def ensure(self, i, j):
-        """Trace the points (i, j) of the extended grid not traced yet."""
-        flat = np.ravel_multi_index((i, j), self.shape)
-        flat = flat[~self.known.ravel()[flat]]
-        # Each point once (the last of its copies keeps its stamp), without sorting.
-        self.stamp.ravel()[flat] = np.arange(flat.size)
-        flat = flat[self.stamp.ravel()[flat] == np.arange(flat.size)]
-        if flat.size == 0:
+        """Trace the points (i, j) of the extended grid not traced yet (each once)."""
+        ii, jj = _untraced(self.slot, np.asarray(i, dtype=np.int64),
+                           np.asarray(j, dtype=np.int64), self.traced)
+        if ii.size == 0:
             return
-        ii, jj = np.unravel_index(flat, self.shape)
-        x, y = self.points(ii, jj)
+        x, y = image_plane_points(self.viewpoint, ii - self.pad + self.row0, jj - self.pad)
         bundle = self.viewpoint.rays_at(x, y)
         raw = trace(self.trace_settings, x, y, bundle, maps=self.maps)
-        if not self.fields:
-            orders = raw["r"].shape[1]
-            for name in self.ORDER_FIELDS:
-                self.fields[name] = np.zeros(self.shape + (orders,), dtype=raw[name].dtype)
-            for name in self.RAY_FIELDS:
-                self.fields[name] = np.zeros(self.shape, dtype=raw[name].dtype)
-        for name, array in self.fields.items():
-            array[ii, jj] = raw[name]
-        self.lam[ii, jj] = bundle.lam
-        self.energy_ratio[ii, jj] = np.broadcast_to(bundle.energy_ratio, bundle.lam.shape)
-        self.known[ii, jj] = True
+        for name in ("r", "phi", "delay", "inward", "fate", "n_crossings", "steps"):
+            new = raw[name]
+            if name in ("phi", "delay") and not self.maps:   # skipped (all NaN): never read
+                new = np.empty((ii.size, 0))
+            self.fields[name] = new if name not in self.fields else np.concatenate(
+                (self.fields[name], new))
+        self.lam = np.concatenate((self.lam, bundle.lam))
+        self.energy_ratio = np.concatenate(
+            (self.energy_ratio, np.broadcast_to(bundle.energy_ratio, bundle.lam.shape)))
         self.traced += ii.size
 
-    def classes(self, i, j):
-        """(per-ray class, per-order class) of traced points: what must not change in a cell."""
-        f = self.fields
-        ray = f["fate"][i, j].astype(np.int64) + 8 * f["n_crossings"][i, j].astype(np.int64)
-        return ray, self.order_classes(f["r"][i, j], f["inward"][i, j])
 
-    def order_classes(self, r, inward):
-        s = self.settings
-        with np.errstate(invalid="ignore"):
-            return (np.isfinite(r).astype(np.int8) + 2 * inward.astype(np.int8)
-                    + 4 * (r >= s.inner_radius) + 8 * (r <= s.outer_radius) + 16 * (r >= s.isco))
+@njit(cache=True)
+def _untraced(slot, rows, cols, first):
+    """The points (rows, cols) not traced yet, each once, given slots from ``first`` on.
+
+    Marks them in ``slot`` at once (the caller traces them next), so a point listed
+    twice is kept once.
+    """
+    keep = np.empty(rows.size, dtype=np.int64)
+    kept = 0
+    for k in range(rows.size):
+        if slot[rows[k], cols[k]] < 0:
+            slot[rows[k], cols[k]] = first + kept
+            keep[kept] = k
+            kept += 1
+    return rows[keep[:kept]], cols[keep[:kept]]
 
 
-def _wrapped(angle):
-    """Angle difference brought into [-pi, pi)."""
-    return np.mod(angle + np.pi, 2.0 * np.pi) - np.pi
+@njit(cache=True)
+def _ray_class(fate, n_crossings, k):
+    """What must not change across a cell, per ray: the fate and the number of crossings."""
+    return np.int64(fate[k]) + 8 * np.int64(n_crossings[k])
+
+
+@njit(cache=True)
+def _order_class(r, inward, inner_radius, outer_radius, isco):
+    """What must not change across a cell, per crossing: whether there is one, its direction,
+    and on which side of the disk's edges and the ISCO it lies (NaN r: none of them)."""
+    return (np.int64(np.isfinite(r)) + 2 * np.int64(inward) + 4 * np.int64(r >= inner_radius)
+            + 8 * np.int64(r <= outer_radius) + 16 * np.int64(r >= isco))
 
 
 @njit(cache=True, parallel=True)
-def _fill_cells(nodes, weights, cells_i, cells_j, is_angle, out):
-    """Write the tensor-product cubic interpolant of the cells (cells_i, cells_j) into ``out``.
+def _waiting_cells(accepted_by, stride):
+    """Cells of stride ``stride`` (ceil(height / s), ceil(width / s)) with a pixel not accepted yet."""
+    height, width = accepted_by.shape
+    n_i, n_j = -(-height // stride), -(-width // stride)
+    waiting = np.zeros((n_i, n_j), dtype=np.bool_)
+    for ci in prange(n_i):
+        for y in range(ci * stride, min((ci + 1) * stride, height)):
+            for x in range(width):
+                if accepted_by[y, x] == 0:
+                    waiting[ci, x // stride] = True
+    return waiting
 
-    ``nodes`` (n_i + 3, n_j + 3, orders): cell (i, j) has the stencil
-    ``nodes[i:i + 4, j:j + 4]`` and covers the pixels ``out[i * s:(i + 1) * s,
-    j * s:(j + 1) * s]`` with s = ``weights.shape[0]`` (from :func:`_cubic_weights`).
-    An angle is interpolated continuously about the stencil's node (1, 1) and
-    written modulo 2 pi (phi is kept modulo 2 pi).
+
+@njit(cache=True)
+def _stencil_nodes(waiting, stride, pad):
+    """Extended-grid (rows, cols) of the nodes in the 4 x 4 stencil of any waiting cell.
+
+    Node (k, l) of the level lies at ``pad + (k - 1) * stride``, ``pad + (l - 1) * stride``;
+    cell (ci, cj) uses the nodes ci..ci + 3, cj..cj + 3.
     """
-    stride = weights.shape[0]
+    n_i, n_j = waiting.shape
+    needed = np.zeros((n_i + 3, n_j + 3), dtype=np.bool_)
+    for ci in range(n_i):
+        for cj in range(n_j):
+            if waiting[ci, cj]:
+                needed[ci:ci + 4, cj:cj + 4] = True
+    ni, nj = np.nonzero(needed)
+    return pad + (ni - 1) * stride, pad + (nj - 1) * stride
+
+
+@njit(cache=True, parallel=True)
+def _smooth_cells(waiting, stride, pad, slot, fate, n_crossings, r, inward, inner_radius,
+                  outer_radius, isco):
+    """(cells_i, cells_j) of the waiting cells whose 16 stencil nodes share one class.
+
+    The class is that of :func:`_ray_class` and, for each order, :func:`_order_class`;
+    the nodes must be traced.
+    """
+    n_i, n_j = waiting.shape
+    smooth = np.zeros((n_i, n_j), dtype=np.bool_)
+    for ci in prange(n_i):
+        for cj in range(n_j):
+            if not waiting[ci, cj]:
+                continue
+            corner = slot[pad + ci * stride, pad + cj * stride]
+            ray = _ray_class(fate, n_crossings, corner)
+            same = True
+            for a in range(4):
+                for b in range(4):
+                    k = slot[pad + (ci + a - 1) * stride, pad + (cj + b - 1) * stride]
+                    if _ray_class(fate, n_crossings, k) != ray:
+                        same = False
+                    for q in range(r.shape[1]):
+                        if (_order_class(r[k, q], inward[k, q], inner_radius, outer_radius, isco)
+                                != _order_class(r[corner, q], inward[corner, q], inner_radius,
+                                                outer_radius, isco)):
+                            same = False
+            smooth[ci, cj] = same
+    return np.nonzero(smooth)
+
+
+@njit(cache=True)
+def _stencil(values, slot, ci, cj, q, stride, pad, is_angle, v):
+    """Load the 4 x 4 node values of cell (ci, cj), order q, into ``v``.
+
+    An angle is made continuous about the stencil's node (1, 1), the cell's corner.
+    """
     two_pi = 2.0 * np.pi
+    ref = values[slot[pad + ci * stride, pad + cj * stride], q]
+    for a in range(4):
+        for b in range(4):
+            x = values[slot[pad + (ci + a - 1) * stride, pad + (cj + b - 1) * stride], q]
+            if is_angle:
+                x = ref + ((x - ref + np.pi) % two_pi - np.pi)
+            v[a, b] = x
+
+
+@njit(cache=True)
+def _across(v, weights, di, across):
+    """The stencil's four columns interpolated to row offset ``di`` (first pass of the tensor product)."""
+    for b in range(4):
+        across[b] = (weights[di, 0] * v[0, b] + weights[di, 1] * v[1, b]
+                     + weights[di, 2] * v[2, b] + weights[di, 3] * v[3, b])
+
+
+@njit(cache=True)
+def _along(across, weights, dj, is_angle):
+    """The row ``across`` interpolated to column offset ``dj``; an angle modulo 2 pi."""
+    x = (weights[dj, 0] * across[0] + weights[dj, 1] * across[1]
+         + weights[dj, 2] * across[2] + weights[dj, 3] * across[3])
+    return x % (2.0 * np.pi) if is_angle else x
+
+
+@njit(cache=True)
+def _interpolated_at(values, slot, ci, cj, q, offsets, stride, pad, weights, is_angle, v, across,
+                     out):
+    """The cell's cubic interpolant of ``values`` (order q) at each offset (di, dj) in the cell."""
+    _stencil(values, slot, ci, cj, q, stride, pad, is_angle, v)
+    for t in range(offsets.shape[0]):
+        _across(v, weights, offsets[t, 0], across)
+        out[t] = _along(across, weights, offsets[t, 1], is_angle)
+
+
+@njit(cache=True)
+def _within(value, exact, tolerance, kind):
+    """Whether an interpolated value meets the tolerance (NaN must meet NaN).
+
+    ``kind``: 0 relative, 1 angle (absolute, modulo 2 pi), 2 mixed (absolute below 1,
+    relative above).
+    """
+    if np.isnan(value) and np.isnan(exact):
+        return True
+    error = value - exact
+    if kind == 1:
+        return abs((error + np.pi) % (2.0 * np.pi) - np.pi) <= tolerance
+    scale = abs(exact) if kind == 0 else max(1.0, abs(exact))
+    return abs(error) <= tolerance * scale
+
+
+@njit(cache=True, parallel=True)
+def _tests_passed(cells_i, cells_j, offsets, stride, pad, weights, slot, fate, n_crossings, r,
+                  phi, delay, inward, lam, energy_ratio, spin, r_min, tolerance, inner_radius,
+                  outer_radius, isco, maps):
+    """Which cells' interpolants meet ``tolerance`` at their traced test pixels ``offsets``.
+
+    At each test pixel, every order's r and g (from the interpolated r with the pixel's
+    lam and energy ratio, :func:`render.light.disk.keplerian_redshift`; ``r_min`` as
+    there) must be within ``tolerance`` relative, and with ``maps`` phi (absolute,
+    modulo 2 pi) and the delay (absolute below 1 M, relative above) too; the test
+    pixel must be in the class of the cell's nodes, and so must the interpolated r.
+    """
+    ok = np.empty(cells_i.size, dtype=np.bool_)
+    n_tests = offsets.shape[0]
     for k in prange(cells_i.size):
         ci, cj = cells_i[k], cells_j[k]
         v = np.empty((4, 4))
         across = np.empty(4)
-        for q in range(nodes.shape[2]):
-            ref = nodes[ci + 1, cj + 1, q]
-            for a in range(4):
-                for b in range(4):
-                    x = nodes[ci + a, cj + b, q]
-                    if is_angle:
-                        x = ref + ((x - ref + np.pi) % two_pi - np.pi)
-                    v[a, b] = x
+        r_value, phi_value, delay_value = np.empty(n_tests), np.empty(n_tests), np.empty(n_tests)
+        node = slot[pad + ci * stride, pad + cj * stride]
+        passed = True
+        for t in range(n_tests):
+            test = slot[pad + ci * stride + offsets[t, 0], pad + cj * stride + offsets[t, 1]]
+            if _ray_class(fate, n_crossings, test) != _ray_class(fate, n_crossings, node):
+                passed = False
+        for q in range(r.shape[1]):
+            if not passed:
+                break
+            node_class = _order_class(r[node, q], inward[node, q], inner_radius, outer_radius,
+                                      isco)
+            _interpolated_at(r, slot, ci, cj, q, offsets, stride, pad, weights, False, v, across,
+                             r_value)
+            if maps:
+                _interpolated_at(phi, slot, ci, cj, q, offsets, stride, pad, weights, True, v,
+                                 across, phi_value)
+                _interpolated_at(delay, slot, ci, cj, q, offsets, stride, pad, weights, False, v,
+                                 across, delay_value)
+            for t in range(n_tests):
+                test = slot[pad + ci * stride + offsets[t, 0], pad + cj * stride + offsets[t, 1]]
+                r_exact = r[test, q]
+                g_value = keplerian_redshift(r_value[t], lam[test], energy_ratio[test], spin, r_min)
+                g_exact = keplerian_redshift(r_exact, lam[test], energy_ratio[test], spin, r_min)
+                order = _order_class(r_exact, inward[test, q], inner_radius, outer_radius, isco)
+                if not (_within(r_value[t], r_exact, tolerance, 0)
+                        and _within(g_value, g_exact, tolerance, 0)
+                        and order == node_class
+                        and order == _order_class(r_value[t], inward[test, q], inner_radius,
+                                                  outer_radius, isco)
+                        and (not maps or (_within(phi_value[t], phi[test, q], tolerance, 1)
+                                          and _within(delay_value[t], delay[test, q],
+                                                      tolerance, 2)))):
+                    passed = False
+        ok[k] = passed
+    return ok
+
+
+@njit(cache=True, parallel=True)
+def _mark_accepted(accepted_by, cells_i, cells_j, stride):
+    """Give the band's pixels of the cells (cells_i, cells_j) not accepted yet the stride."""
+    height, width = accepted_by.shape
+    for k in prange(cells_i.size):
+        for y in range(cells_i[k] * stride, min((cells_i[k] + 1) * stride, height)):
+            for x in range(cells_j[k] * stride, min((cells_j[k] + 1) * stride, width)):
+                if accepted_by[y, x] == 0:
+                    accepted_by[y, x] = stride
+
+
+@njit(cache=True, parallel=True)
+def _fill_cells(cells_i, cells_j, stride, pad, weights, slot, values, is_angle, out):
+    """Write the cells' cubic interpolant of ``values`` into the untraced pixels of ``out``.
+
+    ``out`` is (height * width, orders) in row order; pixels beyond the band's edges
+    and traced pixels (which keep their traced values) are skipped.
+    """
+    height, width = slot.shape[0] - 3 * pad, slot.shape[1] - 3 * pad
+    for k in prange(cells_i.size):
+        ci, cj = cells_i[k], cells_j[k]
+        v = np.empty((4, 4))
+        across = np.empty(4)
+        for q in range(values.shape[1]):
+            _stencil(values, slot, ci, cj, q, stride, pad, is_angle, v)
             for di in range(stride):
-                for b in range(4):
-                    across[b] = (weights[di, 0] * v[0, b] + weights[di, 1] * v[1, b]
-                                 + weights[di, 2] * v[2, b] + weights[di, 3] * v[3, b])
+                y = ci * stride + di
+                if y >= height:
+                    break
+                _across(v, weights, di, across)
                 for dj in range(stride):
-                    x = (weights[dj, 0] * across[0] + weights[dj, 1] * across[1]
-                         + weights[dj, 2] * across[2] + weights[dj, 3] * across[3])
-                    out[ci * stride + di, cj * stride + dj, q] = x % two_pi if is_angle else x
+                    x = cj * stride + dj
+                    if x >= width:
+                        break
+                    if slot[pad + y, pad + x] < 0:
+                        out[y * width + x, q] = _along(across, weights, dj, is_angle)
 
 
-def _within(value, exact, tolerance, kind):
-    """Whether interpolated values meet the tolerance (NaN must meet NaN).
+@njit(cache=True, parallel=True)
+def _assemble_pixels(accepted_by, pad, slot, r, phi, delay, inward, fate, n_crossings, steps,
+                     maps, out_r, out_phi, out_delay, out_inward, out_fate, out_n_crossings,
+                     out_steps, interpolated):
+    """Traced pixels' values, and interpolated pixels' classes, into the band's arrays.
 
-    ``kind``: "relative", "angle" (absolute, modulo 2 pi) or "mixed" (absolute below 1,
-    relative above).
+    A traced pixel keeps all its traced values; an interpolated one (untraced, accepted
+    with stride s) takes its fate, crossing count and crossing directions from the node
+    at the corner of its cell (all nodes of an accepted cell share them), and 0 steps.
+    Its r, phi and delay come from :func:`_fill_cells`.
     """
-    both_nan = np.isnan(value) & np.isnan(exact)
-    with np.errstate(invalid="ignore"):
-        if kind == "angle":
-            error, scale = _wrapped(value - exact), 1.0
-        else:
-            error = value - exact
-            scale = np.abs(exact) if kind == "relative" else np.maximum(1.0, np.abs(exact))
-        return both_nan | (np.abs(error) <= tolerance * scale)
+    height, width = accepted_by.shape
+    for y in prange(height):
+        for x in range(width):
+            p = y * width + x
+            k = slot[pad + y, pad + x]
+            interpolated[p] = k < 0
+            if k >= 0:
+                for q in range(r.shape[1]):
+                    out_r[p, q] = r[k, q]
+                    if maps:
+                        out_phi[p, q] = phi[k, q]
+                        out_delay[p, q] = delay[k, q]
+                out_steps[p] = steps[k]
+            else:
+                s = accepted_by[y, x]
+                k = slot[pad + y // s * s, pad + x // s * s]
+                out_steps[p] = 0
+            for q in range(r.shape[1]):
+                out_inward[p, q] = inward[k, q]
+            out_fate[p] = fate[k]
+            out_n_crossings[p] = n_crossings[k]
 
 
-def _level(store, pending, stride, spin, out):
-    """One level: interpolate (into ``out``) and accept the cells of stride ``stride``.
+def _level(store, settings, accepted_by, stride, spin):
+    """One level: the cells of stride ``stride`` that pass their tests, (cells_i, cells_j).
 
-    Returns the accepted pixels of the band (bool, ``pending.shape``), or None when
-    nothing is pending.  Values written for cells that fail their tests are left in
-    ``out`` but never used (those pixels stay pending).
+    Returns None when no pixel is waiting.  Traces the stencil nodes of the waiting cells
+    and the test pixels of the smooth ones; marks the accepted pixels in ``accepted_by``.
     """
-    height, width = pending.shape
-    n_i, n_j = -(-height // stride), -(-width // stride)
-    padded = np.zeros((n_i * stride, n_j * stride), dtype=bool)
-    padded[:height, :width] = pending
-    waiting = padded.reshape(n_i, stride, n_j, stride).any(axis=(1, 3))
+    waiting = _waiting_cells(accepted_by, stride)
     if not waiting.any():
         return None
     p = store.pad
-    node_rows = p + (np.arange(n_i + 3) - 1) * stride         # extended rows of the nodes
-    node_cols = p + (np.arange(n_j + 3) - 1) * stride
-    needed = np.zeros((n_i + 3, n_j + 3), dtype=bool)
-    for a in range(4):
-        for b in range(4):
-            needed[a:a + n_i, b:b + n_j] |= waiting
-    ni, nj = np.nonzero(needed)
-    store.ensure(node_rows[ni], node_cols[nj])
-    grid = np.ix_(node_rows, node_cols)
-    ray, order = store.classes(*grid)
-    smooth = waiting.copy()
-    for a in range(4):
-        for b in range(4):
-            smooth &= ray[a:a + n_i, b:b + n_j] == ray[1:1 + n_i, 1:1 + n_j]
-            smooth &= (order[a:a + n_i, b:b + n_j] == order[1:1 + n_i, 1:1 + n_j]).all(axis=-1)
-    ci, cj = np.nonzero(smooth)
-    weights = _cubic_weights(stride)
-    for name in ("r", "phi", "delay") if store.maps else ("r",):
-        _fill_cells(np.ascontiguousarray(store.fields[name][grid]), weights, ci, cj,
-                    name == "phi", out[name])
-    for di, dj in _test_offsets(stride):
-        ti, tj = ci * stride + di, cj * stride + dj
-        store.ensure(p + ti, p + tj)
-        test = {name: out[name][ti, tj] for name in ("r", "phi", "delay")}
-        smooth[ci, cj] &= _tests_passed(store, test, (p + ti, p + tj),
-                                        (node_rows[ci + 1], node_cols[cj + 1]), spin)
-    return np.repeat(np.repeat(smooth, stride, 0), stride, 1)[:height, :width]
+    store.ensure(*_stencil_nodes(waiting, stride, p))
+    f = store.fields
+    edges = (settings.inner_radius, settings.outer_radius, settings.isco)
+    ci, cj = _smooth_cells(waiting, stride, p, store.slot, f["fate"], f["n_crossings"],
+                           f["r"], f["inward"], *edges)
+    offsets = np.array(_test_offsets(stride), dtype=np.int64)
+    store.ensure((p + ci[:, None] * stride + offsets[:, 0]).ravel(),
+                 (p + cj[:, None] * stride + offsets[:, 1]).ravel())
+    ok = _tests_passed(ci, cj, offsets, stride, p, _cubic_weights(stride), store.slot,
+                       f["fate"], f["n_crossings"], f["r"], f["phi"], f["delay"], f["inward"],
+                       store.lam, store.energy_ratio, float(spin),
+                       float(isco_radius(spin)) * (1.0 - 1e-12),
+                       TEST_MARGIN * settings.tolerance, *edges, bool(store.maps))
+    ci, cj = ci[ok], cj[ok]
+    _mark_accepted(accepted_by, ci, cj, stride)
+    return ci, cj
 
 
 def _test_offsets(stride):
@@ -323,29 +512,6 @@ def _test_offsets(stride):
     """
     half = stride // 2
     return ((half, half), (half, 0), (0, half))
-
-
-def _tests_passed(store, test, at, node, spin):
-    """Which cells' interpolants ``test`` meet the tolerance at their traced test pixels ``at``.
-
-    The test pixel must also be in the class of the cell's nodes (``node``: one of them).
-    """
-    tol = TEST_MARGIN * store.settings.tolerance
-    f = store.fields
-    ti, tj = at
-    r_exact, r_value = f["r"][ti, tj], test["r"]
-    lam = store.lam[ti, tj][:, None]
-    ratio = store.energy_ratio[ti, tj][:, None]
-    with np.errstate(invalid="ignore"):
-        g_exact = redshift_factor(r_exact, lam, spin, ratio)
-        g_value = redshift_factor(r_value, lam, spin, ratio)
-    ray, order = store.classes(ti, tj)
-    ray_node, order_node = store.classes(*node)
-    ok = (_within(r_value, r_exact, tol, "relative") & _within(g_value, g_exact, tol, "relative")
-          & _within(test["phi"], f["phi"][ti, tj], tol, "angle")
-          & _within(test["delay"], f["delay"][ti, tj], tol, "mixed")
-          & (order == order_node) & (store.order_classes(r_value, f["inward"][ti, tj]) == order))
-    return ok.all(axis=1) & (ray == ray_node)
 
 
 def sample_band(trace_settings, viewpoint, settings, rows=None, progress=None, maps=True):
@@ -390,59 +556,55 @@ def sample_band(trace_settings, viewpoint, settings, rows=None, progress=None, m
     pad = max(strides, default=1)
     # The integrator computes phi and the delay anyway (as trace() keeps them).
     maps = maps or trace_settings.method != "closed_form"
-    store = _Store(settings, viewpoint, trace_settings, rows, pad, maps)
-    pending = np.ones((height, width), dtype=bool)
-    # The stride that accepted each interpolated pixel (0: traced).
+    store = _Store(viewpoint, trace_settings, rows, pad, maps)
+    # The stride that accepted each pixel (0: not accepted, traced in the end).
     accepted_by = np.zeros((height, width), dtype=np.int16)
-    out = {}
+    levels = []
     for stride in strides:
-        if not out:
-            store.ensure(np.array([pad]), np.array([pad]))   # the number of orders
-            out = {name: np.full((height + pad, width + pad) + store.fields[name].shape[2:],
-                                 np.nan) for name in ("r", "phi", "delay")}
-        accepted = _level(store, pending, stride, trace_settings.spin, out)
-        if accepted is None:
+        cells = _level(store, settings, accepted_by, stride, trace_settings.spin)
+        if cells is None:
             break
-        accepted &= pending
-        accepted_by[accepted] = stride
-        pending &= ~accepted
+        levels.append((stride, cells))
         if progress is not None:
-            progress(int(height * width - np.count_nonzero(pending)), height * width)
-    return _assembled(store, out, accepted_by, pending)
+            progress(int(np.count_nonzero(accepted_by)), height * width)
+    return _assembled(store, settings, levels, accepted_by)
 
 
-def _assembled(store, out, strides, pending):
+def _assembled(store, settings, levels, accepted_by):
     """The band's raw arrays: traced values where traced, interpolated ones elsewhere.
 
-    An interpolated pixel takes its fate, crossing count and crossing directions from
-    the node at the corner of its cell (all nodes of an accepted cell share them).
+    The pixels no level accepted are traced first.  ``levels``: (stride, (cells_i,
+    cells_j)) of the cells each level accepted.
     """
-    height, width = strides.shape
+    height, width = accepted_by.shape
     p = store.pad
-    ii, jj = np.nonzero(pending)
+    ii, jj = np.nonzero(accepted_by == 0)
     store.ensure(ii + p, jj + p)
-    inside = (slice(p, p + height), slice(p, p + width))
-    strides[store.known[inside]] = 0
-    interpolated = strides > 0
-    raw = {}
-    # The corner node of each pixel's cell (the pixel itself where traced).
-    step = np.maximum(strides, 1)
-    rows = p + np.arange(height)[:, None] // step * step
-    cols = p + np.arange(width)[None, :] // step * step
-    for name, array in store.fields.items():
-        if name in ("phi", "delay") and not store.maps:   # skipped: all NaN, no memory
-            raw[name] = np.broadcast_to(np.nan, (height * width,) + array.shape[2:])
-            continue
-        if name in out:
-            band = np.array(array[inside])
-            where = interpolated.reshape(interpolated.shape + (1,) * (band.ndim - 2))
-            np.copyto(band, out[name][:height, :width], where=where)
-        elif name == "steps":   # no steps were taken for an interpolated pixel
-            band = np.where(interpolated, 0, array[inside]).astype(array.dtype)
-        else:
-            band = array[rows, cols]
-        raw[name] = band.reshape((height * width,) + band.shape[2:])
-    info = {"traced_rays": int(store.traced), "interpolated_pixels": int(interpolated.sum()),
-            "pixels": int(height * width), "tolerance": store.settings.tolerance,
-            "strides": list(store.settings.strides)}
-    return raw, interpolated.ravel(), info
+    f = store.fields
+    pixels, orders = height * width, f["r"].shape[1]
+    raw = {"r": np.empty((pixels, orders))}
+    if store.maps:
+        raw["phi"], raw["delay"] = np.empty((pixels, orders)), np.empty((pixels, orders))
+        phi_out, delay_out = raw["phi"], raw["delay"]
+    else:   # skipped: all NaN, no memory
+        raw["phi"] = raw["delay"] = np.broadcast_to(np.nan, (pixels, orders))
+        phi_out = delay_out = np.empty((0, orders))
+    raw["inward"] = np.empty((pixels, orders), dtype=f["inward"].dtype)
+    for name in ("fate", "n_crossings", "steps"):
+        raw[name] = np.empty(pixels, dtype=f[name].dtype)
+    interpolated = np.empty(pixels, dtype=np.bool_)
+    _assemble_pixels(accepted_by, p, store.slot, f["r"], f["phi"], f["delay"], f["inward"],
+                     f["fate"], f["n_crossings"], f["steps"], bool(store.maps), raw["r"],
+                     phi_out, delay_out, raw["inward"], raw["fate"], raw["n_crossings"],
+                     raw["steps"], interpolated)
+    for stride, (ci, cj) in levels:
+        weights = _cubic_weights(stride)
+        _fill_cells(ci, cj, stride, p, weights, store.slot, f["r"], False, raw["r"])
+        if store.maps:
+            _fill_cells(ci, cj, stride, p, weights, store.slot, f["phi"], True, raw["phi"])
+            _fill_cells(ci, cj, stride, p, weights, store.slot, f["delay"], False, raw["delay"])
+    info = {"traced_rays": int(store.traced),
+            "interpolated_pixels": int(np.count_nonzero(interpolated)),
+            "pixels": int(pixels), "tolerance": settings.tolerance,
+            "strides": list(settings.strides)}
+    return raw, interpolated, info

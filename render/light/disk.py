@@ -26,7 +26,7 @@ from ..spacetime.kerr import circular_orbit_time_component, isco_radius, kepleri
 # opaque: a ray ends at its first crossing on the disk; transparent: orders add up.
 SURFACES = ("opaque", "transparent")
 
-__all__ = ["redshift_factor", "on_disk", "shining_mask"]
+__all__ = ["redshift_factor", "keplerian_redshift", "on_disk", "shining_mask"]
 
 
 def redshift_factor(r, lam, spin, energy_ratio=1.0, inside_isco="nan"):
@@ -90,14 +90,32 @@ def _redshift_kernel(r, lam, energy_ratio, spin, r_min, out):
     """
     for i in prange(r.shape[0]):
         for k in range(r.shape[1]):
-            ri = r[i, k]
-            if not ri >= r_min:
-                out[i, k] = np.nan
-                continue
-            root = math.sqrt(ri)
-            r32 = ri * root
-            u_t = (r32 + spin) / (math.sqrt(r32) * math.sqrt(r32 - 3.0 * root + 2.0 * spin))
-            out[i, k] = energy_ratio[i] / (u_t * (1.0 - lam[i] / (r32 + spin)))
+            out[i, k] = keplerian_redshift(r[i, k], lam[i], energy_ratio[i], spin, r_min)
+
+
+@njit(cache=True, error_model="numpy")
+def keplerian_redshift(r, lam, energy_ratio, spin, r_min):
+    """g of one crossing at radius r (M) of a ray with lam and energy_ratio; NaN below ``r_min``.
+
+    The scalar form of :func:`redshift_factor` for kernels (``r_min``: the ISCO times
+    1 - 1e-12, as there); NaN for NaN r.
+
+    References
+    ----------
+    Cunningham & Bardeen (1973), ApJ 183, 237, eq. 8; Bardeen, Press & Teukolsky
+    (1972), ApJ 178, 347, eqs. 2.15-2.16.
+
+    Examples
+    --------
+    >>> keplerian_redshift(6.0, 0.0, 1.0, 0.0, 6.0) == math.sqrt(0.5)
+    True
+    """
+    if not r >= r_min:
+        return np.nan
+    root = math.sqrt(r)
+    r32 = r * root
+    u_t = (r32 + spin) / (math.sqrt(r32) * math.sqrt(r32 - 3.0 * root + 2.0 * spin))
+    return energy_ratio / (u_t * (1.0 - lam / (r32 + spin)))
 
 
 def on_disk(r, r_in, r_out):
