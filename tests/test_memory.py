@@ -411,3 +411,27 @@ def test_a_full_disk_while_writing_tiles_is_one_output_write_error(tmp_path, mon
         store.write_band("intensity", np.zeros((2, 4)), (0, 2), 4)
     assert "\n" not in str(caught.value)
     store.release()
+
+
+def test_a_band_write_failing_while_the_next_renders_stops_the_render(tmp_path, monkeypatch):
+    # Bands are written on a thread of their own while the next band is rendered: a
+    # write that fails there (a full disk) must still stop the render with the one-line
+    # run error, and leave no temporary files behind.
+    import errno
+
+    from render.errors import OutputWriteError
+    from render.imaging.tiling import TileStore
+
+    real_write = TileStore._write_band
+    written = []
+
+    def full_disk_on_second_band(store, name, band, rows, full_height):
+        if rows[0] > 0:
+            raise OSError(errno.ENOSPC, "No space left on device")
+        written.append(rows)
+        return real_write(store, name, band, rows, full_height)
+
+    monkeypatch.setattr(TileStore, "_write_band", full_disk_on_second_band)
+    with pytest.raises(OutputWriteError, match="No space left on device"):
+        render_still(small(), memory_budget=3e5, workdir=tmp_path)
+    assert written and list(tmp_path.iterdir()) == []

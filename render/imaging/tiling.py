@@ -4,9 +4,11 @@ A still whose arrays fit in ``tracing.memory_budget`` is rendered in one
 piece.  A larger one is rendered in bands of rows ("tiles"): each band is
 traced and shaded on its own, and its maps are written straight into
 ``.npy`` files in a temporary folder (inside the output folder when the command
-line renders), by plain file writes, so that no more than one band is ever
-held in memory.  The result's arrays are then read-only memory maps of those
-files; :func:`render.output.files.write_npz` streams them into the NPZ by plain
+line renders), by plain file writes on a thread of their own while the next
+band is rendered, so that no more than one band's working arrays and the
+previous band's finished maps are ever held in memory.  The result's arrays
+are then read-only memory maps of those files;
+:func:`render.output.files.write_npz` streams them into the NPZ by plain
 reads, so writing does not pull them into memory either.  Call
 :meth:`render.imaging.result.StillResult.release` (the command line does) to delete the
 temporary folder.
@@ -21,14 +23,16 @@ refused before any work.  So is an image whose smallest tile (one row), or
 whose 8-bit picture for the PNG, does not fit.
 
 Memory model (bytes per pixel, 8-byte floats; a deliberate over-estimate that
-covers the shading temporaries): ``BYTES_PER_PIXEL + BYTES_PER_ORDER * orders``
-(+ ``BYTES_TRUE_COLOUR`` in true colour).  A tile may use a quarter of the
-budget; the rest is left to the interpreter, the libraries and the PNG step.
+covers the shading temporaries and the previous band's maps waiting to be
+written): ``BYTES_PER_PIXEL + BYTES_PER_ORDER * orders`` (+ ``BYTES_TRUE_COLOUR``
+in true colour).  A tile may use a quarter of the budget; the rest is left to
+the interpreter, the libraries and the PNG step.
 """
 
 import shutil
 import tempfile
 import time
+from concurrent import futures
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -297,6 +301,10 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
     store = TileStore(workdir)
     store.per_order = frozenset(PER_ORDER_FIELDS) | {f"product.{n}" for n in PER_ORDER_PRODUCTS}
     total_rays = plan.width * plan.height
+    # A band's files are written by a thread of their own while the next band is
+    # traced and shaded (file writes release the GIL; shading is mostly one thread).
+    writer = futures.ThreadPoolExecutor(max_workers=1, thread_name_prefix="nullray-tiles")
+    writing = None
     try:
         _check_temporary_space(store, plan)
         metadata = None
@@ -316,7 +324,11 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
                     progress(_offset + done, total_rays)
 
             part = render_band(rows, band_progress)
-            _store_band(store, part, rows, plan.height, skipped)
+            # The previous band's files are finished before this one's are begun: one
+            # band at most waits in memory while the next is rendered.
+            if writing is not None:
+                writing.result()
+            writing = writer.submit(_store_band, store, part, rows, plan.height, skipped)
             if product_names is None:
                 product_names = list(part.products)
             meta = part.metadata
@@ -330,10 +342,16 @@ def render_in_tiles(scene, plan, render_band, workdir=None, progress=None):
             if metadata is None:
                 metadata = dict(meta)
             del part
+        if writing is not None:
+            writing.result()
         arrays = store.arrays()
     except BaseException:
+        if writing is not None:
+            futures.wait([writing])   # no file is written into a folder being removed
         store.release()
         raise
+    finally:
+        writer.shutdown(wait=True)
     metadata.update({
         "fate_counts": counts, "steps_mean": steps_sum / total_rays, "observing": info,
         "negative_energy_rays": negative, "sampling": sampling,

@@ -36,6 +36,7 @@ at the emission angle in the emitter's frame (:func:`render.light.emission.emiss
 from dataclasses import dataclass, field, replace
 
 import numpy as np
+from numba import njit, prange
 
 from .color import automatic_reference_luminance, desaturate_into_gamut, xyz_to_linear_srgb
 from .display import scene_colour_pixels, scene_scalar_pixels
@@ -291,11 +292,33 @@ def on_lit(function, r, hits, fill=0.0):
 
 
 def order_sum(values, hits):
-    """Per-ray sum over the shining crossings of an (N, orders) array (NaN counts as 0)."""
-    with np.errstate(invalid="ignore"):
-        values = np.where(hits, values, 0.0)
-    return np.nan_to_num(values, nan=0.0).sum(axis=1)
+    """Per-ray sum over the shining crossings of an (N, orders) array (NaN counts as 0).
 
+    The orders are added in turn from n = 0, as ``numpy.sum`` adds so few terms, and an
+    infinite term counts as the largest float (as ``numpy.nan_to_num``).
+
+    Examples
+    --------
+    >>> order_sum(np.array([[1.0, np.nan, 4.0]]), np.array([[True, True, False]])).tolist()
+    [1.0]
+    """
+    hits = np.asarray(hits, dtype=np.bool_)
+    values = np.ascontiguousarray(np.broadcast_to(values, hits.shape), dtype=float)
+    out = np.empty(hits.shape[0])
+    _order_sum_kernel(values, np.ascontiguousarray(hits), np.finfo(float).max, out)
+    return out
+
+
+@njit(cache=True, parallel=True)
+def _order_sum_kernel(values, hits, largest, out):
+    for i in prange(values.shape[0]):
+        total = 0.0
+        for k in range(values.shape[1]):
+            v = values[i, k]
+            if not hits[i, k] or v != v:
+                continue
+            total += min(max(v, -largest), largest)
+        out[i] = total
 
 
 def disk_reaches_border(hits, height, width):
